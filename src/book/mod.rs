@@ -1,0 +1,17 @@
+//! Option books as CSV: the column schema, row parsing, number formatting
+//! and the streaming, parallel, order-preserving pipeline every command uses.
+//!
+//! The contract with the user is the same for every command: each input
+//! row gives exactly one output row, in input order, with the input fields
+//! echoed unchanged and the command's result fields appended, the last of
+//! which is `status`. A row that cannot be processed keeps its place, gets
+//! empty result fields and a status naming the line, column and problem.
+
+pub mod pipeline;
+pub mod reader;
+pub mod schema;
+pub mod writer;
+
+pub use pipeline::{run_book, BookSummary, PipelineOptions};
+pub use reader::{parse_row, BookRow, RowError};
+pub use schema::{Schema, SchemaError};

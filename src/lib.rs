@@ -1,0 +1,27 @@
+//! saltus: European option books under the Merton (1976) jump-diffusion model.
+//!
+//! The library is organised by concept:
+//! - [`model`]: the validated contract and jump parameters (the conventions);
+//! - [`normal`], [`poisson`]: the special functions everything rests on;
+//! - [`black_scholes`]: the Black-Scholes kernel;
+//! - [`series`]: the closed-form Merton series with analytic Greeks;
+//! - [`greeks`]: the price-and-sensitivities value type and its units;
+//! - [`book`]: the CSV book schema, streaming reader and writer.
+//!
+//! ```
+//! use saltus::model::{Contract, JumpParams, OptionKind};
+//! let c = Contract::new(OptionKind::Put, 50.0, 40.0, 1.0, 0.02, 0.0, 0.25,
+//!     JumpParams { rate: 0.3, mean: -0.2, vol: 0.15 }).unwrap();
+//! let r = saltus::series::price(&c).unwrap();
+//! assert!(r.greeks.price > saltus::black_scholes::price(OptionKind::Put, 50.0, 40.0, 1.0, 0.02, 0.0, 0.25));
+//! ```
+#![forbid(unsafe_code)]
+#![deny(missing_docs)]
+
+pub mod black_scholes;
+pub mod book;
+pub mod greeks;
+pub mod model;
+pub mod normal;
+pub mod poisson;
+pub mod series;
