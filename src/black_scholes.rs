@@ -35,7 +35,11 @@ pub fn greeks(kind: OptionKind, s: f64, k: f64, t: f64, r: f64, q: f64, sigma: f
         } else {
             0.5 * w
         };
-        return Greeks { price: x.max(0.0), delta: slope, ..Greeks::default() };
+        return Greeks {
+            price: x.max(0.0),
+            delta: slope,
+            ..Greeks::default()
+        };
     }
     let dq = (-q * t).exp();
     let dr = (-r * t).exp();
@@ -52,7 +56,11 @@ pub fn greeks(kind: OptionKind, s: f64, k: f64, t: f64, r: f64, q: f64, sigma: f
             (0.5, 0.5)
         };
         let price = (w * (s * dq * n1 - k * dr * n2)).max(0.0);
-        let vega = if x == 0.0 { s * dq * norm_pdf(0.0) * sq_t } else { 0.0 };
+        let vega = if x == 0.0 {
+            s * dq * norm_pdf(0.0) * sq_t
+        } else {
+            0.0
+        };
         return Greeks {
             price,
             delta: w * dq * n1,

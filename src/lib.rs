@@ -22,6 +22,8 @@ pub mod black_scholes;
 pub mod book;
 pub mod greeks;
 pub mod model;
+#[rustfmt::skip]
+mod mills_table;
 pub mod normal;
 pub mod poisson;
 pub mod series;

@@ -31,7 +31,10 @@ enum Command {
 fn main() -> ExitCode {
     let cli = Cli::parse();
     if let Some(n) = cli.threads {
-        if let Err(e) = rayon::ThreadPoolBuilder::new().num_threads(n).build_global() {
+        if let Err(e) = rayon::ThreadPoolBuilder::new()
+            .num_threads(n)
+            .build_global()
+        {
             eprintln!("saltus: cannot start {n} threads: {e}");
             return ExitCode::from(2);
         }

@@ -225,7 +225,11 @@ impl Contract {
         finite("jump_mean", jumps.mean)?;
         non_negative("jump_vol", jumps.vol)?;
         if rate.abs() > 1.0 {
-            return Err(ModelError::OutOfRange { field: "rate", value: rate, range: "-1 to 1" });
+            return Err(ModelError::OutOfRange {
+                field: "rate",
+                value: rate,
+                range: "-1 to 1",
+            });
         }
         if div_yield.abs() > 1.0 {
             return Err(ModelError::OutOfRange {
@@ -242,7 +246,11 @@ impl Contract {
             });
         }
         if vol > 10.0 {
-            return Err(ModelError::OutOfRange { field: "vol", value: vol, range: "0 to 10" });
+            return Err(ModelError::OutOfRange {
+                field: "vol",
+                value: vol,
+                range: "0 to 10",
+            });
         }
         if jumps.mean.abs() > MAX_LOG_JUMP {
             return Err(ModelError::OutOfRange {
@@ -265,7 +273,16 @@ impl Contract {
                 range: "jump_rate * expiry up to 1e5",
             });
         }
-        Ok(Contract { kind, spot, strike, expiry, rate, div_yield, vol, jumps })
+        Ok(Contract {
+            kind,
+            spot,
+            strike,
+            expiry,
+            rate,
+            div_yield,
+            vol,
+            jumps,
+        })
     }
 
     /// Expected number of jumps to expiry, `lambda T`.
@@ -293,7 +310,16 @@ impl Contract {
             Param::JumpMean => c.jumps.mean = value,
             Param::JumpVol => c.jumps.vol = value,
         }
-        Contract::new(c.kind, c.spot, c.strike, c.expiry, c.rate, c.div_yield, c.vol, c.jumps)
+        Contract::new(
+            c.kind,
+            c.spot,
+            c.strike,
+            c.expiry,
+            c.rate,
+            c.div_yield,
+            c.vol,
+            c.jumps,
+        )
     }
 
     /// The value of one model input.
@@ -337,7 +363,11 @@ mod tests {
     use super::*;
 
     fn jumps() -> JumpParams {
-        JumpParams { rate: 0.5, mean: -0.1, vol: 0.2 }
+        JumpParams {
+            rate: 0.5,
+            mean: -0.1,
+            vol: 0.2,
+        }
     }
 
     #[test]
@@ -352,14 +382,27 @@ mod tests {
         let e = Contract::new(OptionKind::Call, 100.0, 100.0, 1.0, 0.0, 0.0, -0.2, jumps())
             .unwrap_err();
         assert_eq!(e.to_string(), "vol must not be negative, got -0.2");
-        let e = Contract::new(OptionKind::Put, f64::NAN, 100.0, 1.0, 0.0, 0.0, 0.2, jumps())
-            .unwrap_err();
+        let e = Contract::new(
+            OptionKind::Put,
+            f64::NAN,
+            100.0,
+            1.0,
+            0.0,
+            0.0,
+            0.2,
+            jumps(),
+        )
+        .unwrap_err();
         assert!(e.to_string().starts_with("spot is not a finite number"));
     }
 
     #[test]
     fn k_uses_expm1() {
-        let j = JumpParams { rate: 1.0, mean: 1e-12, vol: 0.0 };
+        let j = JumpParams {
+            rate: 1.0,
+            mean: 1e-12,
+            vol: 0.0,
+        };
         // exp(1e-12) - 1 = 1e-12 + 5e-25 (Taylor series).
         assert!((j.k() - 1.0000000000005e-12).abs() < 1e-27);
     }

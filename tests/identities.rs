@@ -10,9 +10,12 @@ fn sweep() -> Vec<[f64; 9]> {
     let mut v = Vec::new();
     for &k in &[1.0, 40.0, 80.0, 100.0, 125.0, 250.0, 10_000.0] {
         for &t in &[1.0 / 365.0, 0.1, 1.0, 7.0] {
-            for &(lam, mu, dl) in
-                &[(0.0, 0.0, 0.0), (0.3, -0.2, 0.15), (2.0, 0.05, 0.3), (50.0, -0.02, 0.04)]
-            {
+            for &(lam, mu, dl) in &[
+                (0.0, 0.0, 0.0),
+                (0.3, -0.2, 0.15),
+                (2.0, 0.05, 0.3),
+                (50.0, -0.02, 0.04),
+            ] {
                 for &sig in &[0.0, 0.25] {
                     v.push([100.0, k, t, 0.03, 0.015, sig, lam, mu, dl]);
                 }
@@ -37,7 +40,10 @@ fn put_call_parity_across_a_sweep() {
         let scale = p[0].max(p[1]);
         assert!((c.price - put.price - fwd).abs() <= 1e-12 * scale, "{p:?}");
         // Delta parity: delta_C - delta_P = e^{-qT}.
-        assert!((c.delta - put.delta - (-p[4] * p[2]).exp()).abs() < 1e-12, "{p:?}");
+        assert!(
+            (c.delta - put.delta - (-p[4] * p[2]).exp()).abs() < 1e-12,
+            "{p:?}"
+        );
         // No NaN, no negative price.
         for g in [c, put] {
             assert!(g.headline().iter().all(|x| x.is_finite()), "{p:?} {g:?}");
@@ -52,7 +58,10 @@ fn lambda_zero_equals_black_scholes_to_1e_13() {
         for kind in [Call, Put] {
             let g = price(kind, &p);
             let bs = black_scholes::greeks(kind, p[0], p[1], p[2], p[3], p[4], p[5]);
-            assert!((g.price - bs.price).abs() <= 1e-13 * p[0].max(bs.price), "{p:?}");
+            assert!(
+                (g.price - bs.price).abs() <= 1e-13 * p[0].max(bs.price),
+                "{p:?}"
+            );
             assert!((g.delta - bs.delta).abs() <= 1e-13, "{p:?}");
         }
     }
@@ -66,7 +75,11 @@ fn forward_is_recovered_by_a_zero_strike_limit() {
         let (s, k, t, r, q) = (100.0, 1e-6, 2.0, 0.04, 0.01);
         let c = price(Call, &[s, k, t, r, q, 0.2, lam, mu, dl]);
         let want = (-r * t as f64).exp() * (s * ((r - q) * t as f64).exp() - k);
-        assert!((c.price - want).abs() < 1e-12 * s, "{lam}: {} vs {want}", c.price);
+        assert!(
+            (c.price - want).abs() < 1e-12 * s,
+            "{lam}: {} vs {want}",
+            c.price
+        );
     }
 }
 
@@ -74,7 +87,11 @@ fn forward_is_recovered_by_a_zero_strike_limit() {
 fn fang_oosterlee_2008_black_scholes_values() {
     // Fang & Oosterlee (2008), COS method paper: S=100, r=0.1, q=0, T=0.1,
     // sigma=0.25; K = 80 / 100 / 120 -> 20.799226309 / 3.659968453 / 0.044577814.
-    for (k, want) in [(80.0, 20.799226309), (100.0, 3.659968453), (120.0, 0.044577814)] {
+    for (k, want) in [
+        (80.0, 20.799226309),
+        (100.0, 3.659968453),
+        (120.0, 0.044577814),
+    ] {
         let g = price(Call, &[100.0, k, 0.1, 0.1, 0.0, 0.25, 0.0, 0.0, 0.0]);
         assert!((g.price - want).abs() < 1e-9, "K={k}: {}", g.price);
     }
@@ -96,7 +113,10 @@ fn haug_handbook_greek_examples() {
     let c = black_scholes::greeks(Call, 72.0, 75.0, 1.0, 0.09, 0.0, 0.19);
     assert!((c.rho - 38.7325).abs() < 5e-5);
     // The same through the Merton series with lambda = 0.
-    let m = price(Put, &[430.0, 405.0, 0.0833, 0.07, 0.05, 0.2, 0.0, -0.1, 0.1]);
+    let m = price(
+        Put,
+        &[430.0, 405.0, 0.0833, 0.07, 0.05, 0.2, 0.0, -0.1, 0.1],
+    );
     assert!((m.theta + 31.1924).abs() < 5e-5);
 }
 
@@ -121,7 +141,12 @@ fn greeks_match_central_differences_of_the_price() {
     for (kind, p) in cases {
         let c = merton(kind, p[0], p[1], p[2], p[3], p[4], p[5], p[6], p[7], p[8]);
         let g = series::price(&c).unwrap().greeks;
-        let f = |param: Param, x: f64| series::price(&c.with(param, x).unwrap()).unwrap().greeks.price;
+        let f = |param: Param, x: f64| {
+            series::price(&c.with(param, x).unwrap())
+                .unwrap()
+                .greeks
+                .price
+        };
         let d = |param: Param, h: f64| {
             let x = c.get(param);
             let d1 = (f(param, x + h) - f(param, x - h)) / (2.0 * h);
@@ -139,7 +164,10 @@ fn greeks_match_central_differences_of_the_price() {
             ("d_jump_vol", g.d_jump_vol, d(Param::JumpVol, 1e-3)),
         ];
         for (name, analytic, fd) in checks {
-            assert!((analytic - fd).abs() < 1e-7 * (1.0 + analytic.abs()), "{name}: {analytic} vs {fd}");
+            assert!(
+                (analytic - fd).abs() < 1e-7 * (1.0 + analytic.abs()),
+                "{name}: {analytic} vs {fd}"
+            );
         }
     }
 }
@@ -155,7 +183,10 @@ fn edge_cases_are_exact() {
     let g = price(Call, &[100.0, 90.0, 1.0, 0.05, 0.0, 0.0, 0.0, 0.0, 0.0]);
     assert!((g.price - (100.0 - 90.0 * (-0.05f64).exp())).abs() < 1e-13);
     // lambda * T = 1000 works (no overflow, finite Greeks).
-    let g = price(Put, &[100.0, 100.0, 1.0, 0.02, 0.0, 0.2, 1000.0, -0.01, 0.02]);
+    let g = price(
+        Put,
+        &[100.0, 100.0, 1.0, 0.02, 0.0, 0.2, 1000.0, -0.01, 0.02],
+    );
     assert!(g.headline().iter().all(|x| x.is_finite()) && g.price > 0.0);
     // d/dlambda at lambda = 0 is not zero when the jumps are not trivial.
     let g = price(Put, &[100.0, 100.0, 1.0, 0.02, 0.0, 0.2, 0.0, -0.2, 0.1]);

@@ -10,14 +10,21 @@ fn saltus() -> Command {
 }
 
 fn read_csv(text: &str) -> (Vec<String>, Vec<Vec<String>>) {
-    let mut r = csv::ReaderBuilder::new().flexible(true).from_reader(text.as_bytes());
+    let mut r = csv::ReaderBuilder::new()
+        .flexible(true)
+        .from_reader(text.as_bytes());
     let h = r.headers().unwrap().iter().map(String::from).collect();
-    let rows = r.records().map(|x| x.unwrap().iter().map(String::from).collect()).collect();
+    let rows = r
+        .records()
+        .map(|x| x.unwrap().iter().map(String::from).collect())
+        .collect();
     (h, rows)
 }
 
 fn col(h: &[String], name: &str) -> usize {
-    h.iter().position(|x| x == name).unwrap_or_else(|| panic!("no column {name}"))
+    h.iter()
+        .position(|x| x == name)
+        .unwrap_or_else(|| panic!("no column {name}"))
 }
 
 #[test]
@@ -25,7 +32,11 @@ fn column_order_and_case_do_not_matter() {
     let dir = tempfile::tempdir().unwrap();
     let a = dir.path().join("a.csv");
     let b = dir.path().join("b.csv");
-    fs::write(&a, format!("{HEADER}\ncall,100,95,0.5,0.03,0.2,0.5,-0.1,0.15\n")).unwrap();
+    fs::write(
+        &a,
+        format!("{HEADER}\ncall,100,95,0.5,0.03,0.2,0.5,-0.1,0.15\n"),
+    )
+    .unwrap();
     fs::write(
         &b,
         " Jump_Vol ,JUMP_MEAN,jump_rate,Vol,rate,expiry,strike,spot,KIND\n0.15,-0.1,0.5,0.2,0.03,0.5,95,100,Call\n",
@@ -40,7 +51,13 @@ fn column_order_and_case_do_not_matter() {
         assert_eq!(ra[0][col(&ha, name)], rb[0][col(&hb, name)], "{name}");
     }
     // The input columns are echoed unchanged, first, in their order.
-    assert_eq!(&hb[..9], " Jump_Vol ,JUMP_MEAN,jump_rate,Vol,rate,expiry,strike,spot,KIND".split(',').collect::<Vec<_>>().as_slice());
+    assert_eq!(
+        &hb[..9],
+        " Jump_Vol ,JUMP_MEAN,jump_rate,Vol,rate,expiry,strike,spot,KIND"
+            .split(',')
+            .collect::<Vec<_>>()
+            .as_slice()
+    );
     assert_eq!(rb[0][8], "Call");
 }
 
@@ -57,7 +74,12 @@ fn bad_rows_are_kept_in_order_with_a_status() {
          put,100,95\n\
          put,100,95,0.5,0.03,0.2,0.5,-0.1,0.15,h\n"
     );
-    let out = saltus().arg("price").arg("-").write_stdin(book).output().unwrap();
+    let out = saltus()
+        .arg("price")
+        .arg("-")
+        .write_stdin(book)
+        .output()
+        .unwrap();
     assert_eq!(out.status.code(), Some(1), "exit code 1 when rows failed");
     let (h, rows) = read_csv(&String::from_utf8(out.stdout).unwrap());
     assert_eq!(rows.len(), 8, "row count in == row count out");
@@ -65,12 +87,22 @@ fn bad_rows_are_kept_in_order_with_a_status() {
     let price = col(&h, "price");
     let status: Vec<&str> = rows.iter().map(|r| r[st].as_str()).collect();
     assert_eq!(status[0], "ok");
-    assert_eq!(status[1], "error: line 3: vol must not be negative, got -0.2");
+    assert_eq!(
+        status[1],
+        "error: line 3: vol must not be negative, got -0.2"
+    );
     assert_eq!(status[2], "error: line 4: strike is not a number: 'abc'");
-    assert_eq!(status[3], "error: line 5: kind 'straddle' is not call or put");
+    assert_eq!(
+        status[3],
+        "error: line 5: kind 'straddle' is not call or put"
+    );
     assert_eq!(status[4], "error: line 6: vol is missing");
     assert_eq!(status[5], "error: line 7: vol is not a finite number (NaN)");
-    assert!(status[6].starts_with("error: line 8: malformed record: 3 fields"), "{}", status[6]);
+    assert!(
+        status[6].starts_with("error: line 8: malformed record: 3 fields"),
+        "{}",
+        status[6]
+    );
     assert_eq!(status[7], "ok");
     assert!(rows[1][price].is_empty() && !rows[7][price].is_empty());
     assert!(rows.iter().all(|r| r.len() == h.len()));
@@ -88,14 +120,22 @@ fn missing_column_is_a_clear_error_before_output() {
     assert_eq!(out.status.code(), Some(2));
     assert!(out.stdout.is_empty());
     let err = String::from_utf8(out.stderr).unwrap();
-    assert!(err.contains("missing required columns: jump_mean, jump_vol"), "{err}");
+    assert!(
+        err.contains("missing required columns: jump_mean, jump_vol"),
+        "{err}"
+    );
 }
 
 #[test]
 fn unreadable_file_is_a_clear_error() {
-    let out = saltus().args(["price", "/nonexistent/book.csv"]).output().unwrap();
+    let out = saltus()
+        .args(["price", "/nonexistent/book.csv"])
+        .output()
+        .unwrap();
     assert_eq!(out.status.code(), Some(2));
-    assert!(String::from_utf8(out.stderr).unwrap().contains("cannot open /nonexistent/book.csv"));
+    assert!(String::from_utf8(out.stderr)
+        .unwrap()
+        .contains("cannot open /nonexistent/book.csv"));
 }
 
 #[test]
@@ -103,10 +143,27 @@ fn writes_to_a_file_and_desk_units_rename_columns() {
     let dir = tempfile::tempdir().unwrap();
     let book = dir.path().join("book.csv");
     let out = dir.path().join("out.csv");
-    fs::write(&book, format!("{HEADER}\nput,100,95,0.5,0.03,0.2,0.5,-0.1,0.15\n")).unwrap();
-    saltus().arg("price").arg(&book).arg("-o").arg(&out).assert().success();
+    fs::write(
+        &book,
+        format!("{HEADER}\nput,100,95,0.5,0.03,0.2,0.5,-0.1,0.15\n"),
+    )
+    .unwrap();
+    saltus()
+        .arg("price")
+        .arg(&book)
+        .arg("-o")
+        .arg(&out)
+        .assert()
+        .success();
     let (h, raw) = read_csv(&fs::read_to_string(&out).unwrap());
-    saltus().arg("price").arg(&book).arg("-o").arg(&out).arg("--desk-units").assert().success();
+    saltus()
+        .arg("price")
+        .arg(&book)
+        .arg("-o")
+        .arg(&out)
+        .arg("--desk-units")
+        .assert()
+        .success();
     let (hd, desk) = read_csv(&fs::read_to_string(&out).unwrap());
     assert!(!hd.contains(&"vega".to_string()) && !hd.contains(&"theta".to_string()));
     let v: f64 = raw[0][col(&h, "vega")].parse().unwrap();
@@ -129,8 +186,18 @@ fn output_columns_are_the_documented_ones() {
     assert_eq!(
         tail,
         [
-            "price", "delta", "gamma", "vega", "theta", "rho", "div_rho", "d_jump_rate",
-            "d_jump_mean", "d_jump_vol", "terms", "status"
+            "price",
+            "delta",
+            "gamma",
+            "vega",
+            "theta",
+            "rho",
+            "div_rho",
+            "d_jump_rate",
+            "d_jump_mean",
+            "d_jump_vol",
+            "terms",
+            "status"
         ]
     );
     // Black-Scholes S=K=100, r=2%, sigma=20%, T=1: 8.916037278572539 (scipy/mpmath).
@@ -153,7 +220,15 @@ fn demo_book_prices_with_its_deliberate_bad_rows() {
 #[test]
 fn thread_count_does_not_change_digits() {
     let book = concat!(env!("CARGO_MANIFEST_DIR"), "/data/demo_book.csv");
-    let one = saltus().args(["--threads", "1", "price", book]).output().unwrap().stdout;
-    let two = saltus().args(["--threads", "2", "price", book]).output().unwrap().stdout;
+    let one = saltus()
+        .args(["--threads", "1", "price", book])
+        .output()
+        .unwrap()
+        .stdout;
+    let two = saltus()
+        .args(["--threads", "2", "price", book])
+        .output()
+        .unwrap()
+        .stdout;
     assert_eq!(one, two);
 }

@@ -32,7 +32,10 @@ fn series_prices_and_greeks_match_mpmath_40_digits() {
             failures.push(format!("{name}: price {} vs {want} (err {err:e})", g.price));
         }
         // Truncation bound is an upper bound on the true error (up to rounding).
-        assert!(r.truncation_bound <= 1e-14 * want.abs() + FLOOR * s, "{name}: bound");
+        assert!(
+            r.truncation_bound <= 1e-14 * want.abs() + FLOOR * s,
+            "{name}: bound"
+        );
         let checks: [(&str, f64, f64); 11] = [
             ("delta", g.delta, FLOOR),
             ("gamma", g.gamma, FLOOR / s),
@@ -57,7 +60,12 @@ fn series_prices_and_greeks_match_mpmath_40_digits() {
             }
         }
     }
-    assert!(failures.is_empty(), "{} mismatches:\n{}", failures.len(), failures.join("\n"));
+    assert!(
+        failures.is_empty(),
+        "{} mismatches:\n{}",
+        failures.len(),
+        failures.join("\n")
+    );
     eprintln!("worst relative price error vs mpmath: {worst_price:e}");
 }
 
@@ -69,7 +77,10 @@ fn dhfv_2005_table_value() {
     // The 40-digit mpmath value is 4.39124568920264...; the table agrees to
     // 3e-6, i.e. to its six digits.
     let rows = read_fixture("merton_reference.csv");
-    let row = rows.iter().find(|r| r["case"] == "dhfv2005" && r["kind"] == "call").unwrap();
+    let row = rows
+        .iter()
+        .find(|r| r["case"] == "dhfv2005" && r["kind"] == "call")
+        .unwrap();
     let g = series::price(&contract(row)).unwrap().greeks;
     assert!((g.price - 4.391243).abs() < 5e-6, "{}", g.price);
     assert!((g.price - num(row, "price")).abs() < 1e-13 * 100.0);
@@ -85,7 +96,10 @@ fn normal_cdf_matches_mpmath_in_both_tails() {
         let got = norm_cdf(x);
         let rel = ((got - want) / want).abs();
         worst = worst.max(rel);
-        assert!(rel < 1e-14 * (1.0 + x.abs()), "x={x}: {got} vs {want} ({rel:e})");
+        assert!(
+            rel < 1e-14 * (1.0 + x.abs()),
+            "x={x}: {got} vs {want} ({rel:e})"
+        );
         // Survival function for the mirrored point is the same number.
         assert_eq!(saltus::normal::norm_sf(-x), got);
     }
@@ -106,6 +120,9 @@ fn poisson_pmf_matches_mpmath() {
         // exp(-E) cannot be better than |E| ulps relative: scale the tolerance.
         let rel = ((got - want) / want).abs();
         let tol = 1e-15 * (8.0 + want.ln().abs());
-        assert!(rel < tol, "n={n} mu={mu}: {got} vs {want} ({rel:e} > {tol:e})");
+        assert!(
+            rel < tol,
+            "n={n} mu={mu}: {got} vs {want} ({rel:e} > {tol:e})"
+        );
     }
 }

@@ -1,17 +1,16 @@
 //! The streaming book pipeline: read, process in parallel chunks, write in order.
 //!
-//! A reader thread cuts the input into fixed chunks of [`CHUNK_ROWS`]
-//! records; the calling thread processes a batch of chunks at a time with
-//! rayon (one output buffer per chunk); a writer thread writes the buffers
-//! in chunk order. Channels are bounded, so memory is a few batches whatever
-//! the size of the book. Chunking never changes a result: rows are
+//! The calling thread cuts the input into fixed chunks of [`CHUNK_ROWS`]
+//! records and spawns one rayon task per chunk (one output buffer each); a
+//! writer thread puts the finished buffers back in chunk order and writes
+//! them. At most a few chunks per worker are in flight, so memory is flat
+//! whatever the size of the book. Chunking never changes a result: rows are
 //! processed independently.
 
 use super::reader::{parse_row, BookRow, RowError};
 use super::schema::{Schema, SchemaError};
-use super::writer::push_empty;
+use super::writer::{write_field, RowWriter};
 use csv::ByteRecord;
-use rayon::prelude::*;
 use std::io::{Read, Write};
 use std::sync::mpsc::sync_channel;
 
@@ -54,19 +53,21 @@ pub struct PipelineOptions {
     pub result_columns: Vec<String>,
 }
 
-/// One chunk of raw records with the line of each.
+/// One chunk of raw records with the line of each. `len` records are live;
+/// the vector is recycled between chunks so records keep their allocations.
 struct Chunk {
     first_row: u64,
+    len: usize,
     records: Vec<(ByteRecord, u64)>,
 }
 
 /// Runs a book through `process`.
 ///
 /// `process` receives each row that parsed and validated, and appends every
-/// result column except the last (`status`) to the output record; it returns
-/// `Ok(())` or an error message. On error (or when the row did not parse) the
-/// pipeline discards any partial fields, writes empty result fields and a
-/// status `error: line N: problem`.
+/// result column except the last (`status`) through the [`RowWriter`]; it
+/// returns `Ok(())` or an error message. On error (or when the row did not
+/// parse) the pipeline discards any partial fields, writes empty result
+/// fields and a status `error: line N: problem`.
 ///
 /// # Errors
 /// [`BookError`] for a bad header (before anything is written) or an I/O failure.
@@ -79,9 +80,12 @@ pub fn run_book<R, W, F>(
 where
     R: Read + Send,
     W: Write + Send,
-    F: Fn(&BookRow, &mut ByteRecord) -> Result<(), String> + Sync,
+    F: Fn(&BookRow, &mut RowWriter) -> Result<(), String> + Sync,
 {
-    let mut reader = csv::ReaderBuilder::new().has_headers(true).flexible(true).from_reader(input);
+    let mut reader = csv::ReaderBuilder::new()
+        .has_headers(true)
+        .flexible(true)
+        .from_reader(input);
     let headers = reader.byte_headers()?.clone();
     let schema = Schema::from_headers(&headers)?;
     let n_results = opts.result_columns.len();
@@ -94,96 +98,104 @@ where
     out.write_byte_record(&header_out)?;
     let mut out = out.into_inner().map_err(|e| e.into_error())?;
 
-    let threads = rayon::current_num_threads().max(1);
-    let batch = 4 * threads;
-    let (chunk_tx, chunk_rx) = sync_channel::<Result<Chunk, csv::Error>>(2 * batch);
-    let (buf_tx, buf_rx) = sync_channel::<Vec<u8>>(2 * batch);
+    // Chunks in flight (read but not yet written) are bounded, so memory is
+    // flat whatever the book size.
+    let max_in_flight = 4 * rayon::current_num_threads().max(1) + 2;
+    let (token_tx, token_rx) = sync_channel::<()>(max_in_flight);
+    let (done_tx, done_rx) = std::sync::mpsc::channel::<(u64, ChunkResult)>();
+    let (recycle_tx, recycle_rx) = sync_channel::<Vec<(ByteRecord, u64)>>(max_in_flight);
 
     std::thread::scope(|scope| -> Result<BookSummary, BookError> {
-        // Reader: raw records, in fixed chunks.
-        scope.spawn(move || {
+        // Writer: puts finished chunks back in input order and writes them.
+        let writer = scope.spawn(move || -> std::io::Result<BookSummary> {
+            let mut summary = BookSummary::default();
+            let mut waiting = std::collections::BTreeMap::new();
+            let mut next = 0u64;
+            let mut io_error = None;
+            for (idx, result) in done_rx {
+                waiting.insert(idx, result);
+                while let Some(r) = waiting.remove(&next) {
+                    next += 1;
+                    let _ = token_rx.recv();
+                    summary.rows += r.rows;
+                    summary.failed += r.failed;
+                    for e in r.errors {
+                        if summary.first_errors.len() < MAX_REPORTED_ERRORS {
+                            summary.first_errors.push(e);
+                        }
+                    }
+                    if io_error.is_none() {
+                        if let Err(e) = out.write_all(&r.buf) {
+                            io_error = Some(e);
+                        }
+                    }
+                }
+                if io_error.is_some() {
+                    break;
+                }
+            }
+            if let Some(e) = io_error {
+                return Err(e);
+            }
+            out.flush()?;
+            Ok(summary)
+        });
+
+        // Reader (this thread): cut the input into chunks and hand each to the pool.
+        let mut input_error = None;
+        let schema = &schema;
+        let process = &process;
+        rayon::in_place_scope(|pool| {
             let mut row = 0u64;
+            let mut idx = 0u64;
             loop {
-                let mut records = Vec::with_capacity(CHUNK_ROWS);
+                let mut records = recycle_rx.try_recv().unwrap_or_default();
                 let first_row = row + 1;
-                while records.len() < CHUNK_ROWS {
-                    let mut rec = ByteRecord::new();
-                    match reader.read_byte_record(&mut rec) {
+                let mut len = 0;
+                while len < CHUNK_ROWS {
+                    if records.len() == len {
+                        records.push((ByteRecord::new(), 0));
+                    }
+                    let (rec, line) = &mut records[len];
+                    match reader.read_byte_record(rec) {
                         Ok(true) => {
                             row += 1;
-                            let line = rec.position().map(|p| p.line()).unwrap_or(0);
-                            records.push((rec, line));
+                            *line = rec.position().map(|p| p.line()).unwrap_or(0);
+                            len += 1;
                         }
                         Ok(false) => break,
                         Err(e) => {
-                            let _ = chunk_tx.send(Err(e));
-                            return;
+                            input_error = Some(e);
+                            break;
                         }
                     }
                 }
-                let done = records.len() < CHUNK_ROWS;
-                if !records.is_empty() && chunk_tx.send(Ok(Chunk { first_row, records })).is_err() {
-                    return;
-                }
-                if done {
-                    return;
-                }
-            }
-        });
-        // Writer: buffers in order.
-        let writer = scope.spawn(move || -> std::io::Result<()> {
-            for buf in buf_rx {
-                out.write_all(&buf)?;
-            }
-            out.flush()
-        });
-
-        let mut summary = BookSummary::default();
-        let mut pending: Vec<Chunk> = Vec::with_capacity(batch);
-        let mut input_error = None;
-        let mut output_error = None;
-        let mut chunks = chunk_rx.into_iter();
-        loop {
-            pending.clear();
-            for item in chunks.by_ref() {
-                match item {
-                    Ok(c) => pending.push(c),
-                    Err(e) => {
-                        input_error = Some(e);
-                        break;
+                let last = len < CHUNK_ROWS || input_error.is_some();
+                if len > 0 {
+                    if token_tx.send(()).is_err() {
+                        break; // the writer stopped (output error)
                     }
+                    let chunk = Chunk {
+                        first_row,
+                        len,
+                        records,
+                    };
+                    let done_tx = done_tx.clone();
+                    let recycle_tx = recycle_tx.clone();
+                    pool.spawn(move |_| {
+                        let result = process_chunk(&chunk, schema, n_results, process);
+                        let _ = done_tx.send((idx, result));
+                        let _ = recycle_tx.try_send(chunk.records);
+                    });
+                    idx += 1;
                 }
-                if pending.len() == batch {
+                if last {
                     break;
                 }
             }
-            if pending.is_empty() {
-                break;
-            }
-            let results: Vec<(Vec<u8>, u64, Vec<String>)> = pending
-                .par_iter()
-                .map(|chunk| process_chunk(chunk, &schema, n_results, &process))
-                .collect();
-            for (buf, failed, errors) in results {
-                summary.failed += failed;
-                for e in errors {
-                    if summary.first_errors.len() < MAX_REPORTED_ERRORS {
-                        summary.first_errors.push(e);
-                    }
-                }
-                if buf_tx.send(buf).is_err() {
-                    output_error = Some(());
-                    break;
-                }
-            }
-            summary.rows += pending.iter().map(|c| c.records.len() as u64).sum::<u64>();
-            if input_error.is_some() || output_error.is_some() {
-                break;
-            }
-        }
-        drop(buf_tx);
-        drop(chunks);
-        writer.join().expect("writer thread panicked")?;
+        });
+        drop(done_tx);
+        let summary = writer.join().expect("writer thread panicked")?;
         if let Some(e) = input_error {
             return Err(e.into());
         }
@@ -191,46 +203,57 @@ where
     })
 }
 
-fn process_chunk<F>(
-    chunk: &Chunk,
-    schema: &Schema,
-    n_results: usize,
-    process: &F,
-) -> (Vec<u8>, u64, Vec<String>)
+/// What processing one chunk produced.
+struct ChunkResult {
+    buf: Vec<u8>,
+    rows: u64,
+    failed: u64,
+    errors: Vec<String>,
+}
+
+fn process_chunk<F>(chunk: &Chunk, schema: &Schema, n_results: usize, process: &F) -> ChunkResult
 where
-    F: Fn(&BookRow, &mut ByteRecord) -> Result<(), String> + Sync,
+    F: Fn(&BookRow, &mut RowWriter) -> Result<(), String> + Sync,
 {
-    let mut w = csv::WriterBuilder::new()
-        .flexible(true)
-        .from_writer(Vec::with_capacity(chunk.records.len() * 256));
-    let mut out = ByteRecord::new();
+    let mut buf = Vec::with_capacity(chunk.len * 320);
     let mut failed = 0;
     let mut errors = Vec::new();
-    for (i, (rec, line)) in chunk.records.iter().enumerate() {
+    for (i, (rec, line)) in chunk.records[..chunk.len].iter().enumerate() {
         let row = chunk.first_row + i as u64;
-        out.clear();
+        // Echo the input fields (padded or cut to the header's width).
         for j in 0..schema.width {
-            out.push_field(rec.get(j).unwrap_or(b""));
+            if j > 0 {
+                buf.push(b',');
+            }
+            write_field(&mut buf, rec.get(j).unwrap_or(b""));
         }
-        let echo = out.len();
+        let echo = buf.len();
         let outcome = parse_row(schema, rec, row, *line).and_then(|r| {
-            process(&r, &mut out).map_err(|message| RowError { line: *line, message })
+            process(&r, &mut RowWriter::new(&mut buf)).map_err(|message| RowError {
+                line: *line,
+                message,
+            })
         });
         match outcome {
-            Ok(()) => out.push_field(b"ok"),
+            Ok(()) => buf.extend_from_slice(b",ok"),
             Err(e) => {
                 failed += 1;
-                out.truncate(echo);
-                push_empty(&mut out, n_results - 1);
+                buf.truncate(echo);
+                let mut w = RowWriter::new(&mut buf);
+                w.push_empty(n_results - 1);
                 let msg = e.to_string();
-                out.push_field(format!("error: {msg}").as_bytes());
+                w.push_str(&format!("error: {msg}"));
                 if errors.len() < MAX_REPORTED_ERRORS {
                     errors.push(msg);
                 }
             }
         }
-        // Writing into a Vec cannot fail.
-        w.write_byte_record(&out).expect("in-memory write");
+        buf.push(b'\n');
     }
-    (w.into_inner().expect("in-memory flush"), failed, errors)
+    ChunkResult {
+        buf,
+        rows: chunk.len as u64,
+        failed,
+        errors,
+    }
 }

@@ -39,15 +39,19 @@ impl fmt::Display for RowError {
 }
 
 fn text(field: &[u8]) -> Result<&str, String> {
-    std::str::from_utf8(field).map(str::trim).map_err(|_| "is not valid UTF-8".to_string())
+    std::str::from_utf8(field)
+        .map(str::trim)
+        .map_err(|_| "is not valid UTF-8".to_string())
 }
 
 fn number(rec: &ByteRecord, idx: usize, name: &str) -> Result<f64, String> {
-    let raw = text(rec.get(idx).unwrap_or(b"")).map_err(|e| format!("{name} {e}"))?;
+    let raw = rec.get(idx).unwrap_or(b"").trim_ascii();
     if raw.is_empty() {
         return Err(format!("{name} is missing"));
     }
-    raw.parse::<f64>().map_err(|_| format!("{name} is not a number: '{raw}'"))
+    // Parsed from bytes (fast-float2: correctly rounded, like `str::parse`).
+    fast_float2::parse::<f64, _>(raw)
+        .map_err(|_| format!("{name} is not a number: '{}'", String::from_utf8_lossy(raw)))
 }
 
 fn optional_number(
@@ -114,18 +118,33 @@ pub fn parse_row(
         rate,
         div_yield,
         vol,
-        JumpParams { rate: jump_rate, mean: jump_mean, vol: jump_vol },
+        JumpParams {
+            rate: jump_rate,
+            mean: jump_mean,
+            vol: jump_vol,
+        },
     )
     .map_err(|e| err(e.to_string()))?;
     let id = match schema.id {
-        Some(i) => text(&rec[i]).map_err(|e| err(format!("id {e}")))?.to_string(),
+        Some(i) => text(&rec[i])
+            .map_err(|e| err(format!("id {e}")))?
+            .to_string(),
         None => row.to_string(),
     };
     let underlying = match schema.underlying {
-        Some(i) => text(&rec[i]).map_err(|e| err(format!("underlying {e}")))?.to_string(),
+        Some(i) => text(&rec[i])
+            .map_err(|e| err(format!("underlying {e}")))?
+            .to_string(),
         None => String::new(),
     };
-    Ok(BookRow { row, id, underlying, contract, quantity, multiplier })
+    Ok(BookRow {
+        row,
+        id,
+        underlying,
+        contract,
+        quantity,
+        multiplier,
+    })
 }
 
 #[cfg(test)]
@@ -134,7 +153,14 @@ mod tests {
 
     fn schema() -> Schema {
         Schema::from_headers(&ByteRecord::from(vec![
-            "kind", "spot", "strike", "expiry", "rate", "vol", "jump_rate", "jump_mean",
+            "kind",
+            "spot",
+            "strike",
+            "expiry",
+            "rate",
+            "vol",
+            "jump_rate",
+            "jump_mean",
             "jump_vol",
         ]))
         .unwrap()
@@ -147,26 +173,53 @@ mod tests {
     #[test]
     fn errors_name_line_and_column() {
         let s = schema();
-        let e = parse_row(&s, &rec(&["call", "100", "abc", "1", "0", "0.2", "0", "0", "0"]), 3, 4)
-            .unwrap_err();
+        let e = parse_row(
+            &s,
+            &rec(&["call", "100", "abc", "1", "0", "0.2", "0", "0", "0"]),
+            3,
+            4,
+        )
+        .unwrap_err();
         assert_eq!(e.to_string(), "line 4: strike is not a number: 'abc'");
-        let e = parse_row(&s, &rec(&["straddle", "100", "1", "1", "0", "0.2", "0", "0", "0"]), 1, 2)
-            .unwrap_err();
+        let e = parse_row(
+            &s,
+            &rec(&["straddle", "100", "1", "1", "0", "0.2", "0", "0", "0"]),
+            1,
+            2,
+        )
+        .unwrap_err();
         assert_eq!(e.to_string(), "line 2: kind 'straddle' is not call or put");
-        let e = parse_row(&s, &rec(&["put", "100", "90", "1", "0", "", "0", "0", "0"]), 1, 2)
-            .unwrap_err();
+        let e = parse_row(
+            &s,
+            &rec(&["put", "100", "90", "1", "0", "", "0", "0", "0"]),
+            1,
+            2,
+        )
+        .unwrap_err();
         assert_eq!(e.to_string(), "line 2: vol is missing");
-        let e = parse_row(&s, &rec(&["put", "100", "90", "1", "0", "NaN", "0", "0", "0"]), 1, 2)
-            .unwrap_err();
+        let e = parse_row(
+            &s,
+            &rec(&["put", "100", "90", "1", "0", "NaN", "0", "0", "0"]),
+            1,
+            2,
+        )
+        .unwrap_err();
         assert_eq!(e.to_string(), "line 2: vol is not a finite number (NaN)");
         let e = parse_row(&s, &rec(&["put", "100"]), 1, 9).unwrap_err();
-        assert!(e.to_string().starts_with("line 9: malformed record: 2 fields"));
+        assert!(e
+            .to_string()
+            .starts_with("line 9: malformed record: 2 fields"));
     }
 
     #[test]
     fn id_defaults_to_row_number() {
-        let r = parse_row(&schema(), &rec(&["Call", "100", "90", "1", "0", "0.2", "0", "0", "0"]), 7, 8)
-            .unwrap();
+        let r = parse_row(
+            &schema(),
+            &rec(&["Call", "100", "90", "1", "0", "0.2", "0", "0", "0"]),
+            7,
+            8,
+        )
+        .unwrap();
         assert_eq!((r.id.as_str(), r.quantity), ("7", 1.0));
     }
 }

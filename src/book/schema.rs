@@ -4,8 +4,17 @@
 use csv::ByteRecord;
 
 /// Columns a book must have.
-pub const REQUIRED: [&str; 9] =
-    ["kind", "spot", "strike", "expiry", "rate", "vol", "jump_rate", "jump_mean", "jump_vol"];
+pub const REQUIRED: [&str; 9] = [
+    "kind",
+    "spot",
+    "strike",
+    "expiry",
+    "rate",
+    "vol",
+    "jump_rate",
+    "jump_mean",
+    "jump_vol",
+];
 /// Columns a book may have, with their defaults: `id` (row number),
 /// `underlying` (empty), `div_yield` (0), `quantity` (1), `multiplier` (1).
 pub const OPTIONAL: [&str; 5] = ["id", "underlying", "div_yield", "quantity", "multiplier"];
@@ -106,17 +115,31 @@ mod tests {
     #[test]
     fn finds_columns_in_any_order_and_case() {
         let h = ByteRecord::from(vec![
-            " Jump_Vol", "KIND", "spot ", "strike", "expiry", "rate", "vol", "jump_rate",
-            "jump_mean", "Quantity",
+            " Jump_Vol",
+            "KIND",
+            "spot ",
+            "strike",
+            "expiry",
+            "rate",
+            "vol",
+            "jump_rate",
+            "jump_mean",
+            "Quantity",
         ]);
         let s = Schema::from_headers(&h).unwrap();
-        assert_eq!((s.jump_vol, s.kind, s.quantity, s.id), (0, 1, Some(9), None));
+        assert_eq!(
+            (s.jump_vol, s.kind, s.quantity, s.id),
+            (0, 1, Some(9), None)
+        );
     }
 
     #[test]
     fn reports_every_missing_column() {
         let h = ByteRecord::from(vec!["kind", "spot", "strike", "expiry", "rate", "vol"]);
         let e = Schema::from_headers(&h).unwrap_err();
-        assert_eq!(e.to_string(), "missing required columns: jump_rate, jump_mean, jump_vol");
+        assert_eq!(
+            e.to_string(),
+            "missing required columns: jump_rate, jump_mean, jump_vol"
+        );
     }
 }

@@ -22,13 +22,15 @@ pub fn open_input(path: &Path) -> Result<Box<dyn Read + Send>> {
 /// Opens an output path, `-` or none meaning standard output.
 pub fn open_output(path: Option<&Path>) -> Result<Box<dyn Write + Send>> {
     match path {
-        None => Ok(Box::new(BufWriter::with_capacity(1 << 20, io::stdout()))),
+        // Small buffers: the pipeline writes whole chunks, which then bypass
+        // the buffer instead of being copied through it.
+        None => Ok(Box::new(BufWriter::with_capacity(1 << 16, io::stdout()))),
         Some(p) if p.as_os_str() == "-" => {
-            Ok(Box::new(BufWriter::with_capacity(1 << 20, io::stdout())))
+            Ok(Box::new(BufWriter::with_capacity(1 << 16, io::stdout())))
         }
         Some(p) => {
             let f = File::create(p).with_context(|| format!("cannot create {}", p.display()))?;
-            Ok(Box::new(BufWriter::with_capacity(1 << 20, f)))
+            Ok(Box::new(BufWriter::with_capacity(1 << 16, f)))
         }
     }
 }
@@ -55,7 +57,11 @@ pub fn report_rows(summary: &BookSummary, verb: &str, seconds: f64) {
         );
     }
     let ok = summary.rows - summary.failed;
-    let rate = if seconds > 0.0 { summary.rows as f64 / seconds } else { 0.0 };
+    let rate = if seconds > 0.0 {
+        summary.rows as f64 / seconds
+    } else {
+        0.0
+    };
     eprintln!(
         "saltus: {ok} rows {verb}, {} rows failed, {} rows in {seconds:.3} s ({rate:.0} rows/s)",
         summary.failed, summary.rows

@@ -3,7 +3,6 @@
 
 use super::{open_input, open_output, report_rows, rows_exit_code};
 use anyhow::Result;
-use saltus::book::writer::{push_f64, push_u64};
 use saltus::book::{run_book, PipelineOptions};
 use saltus::greeks::{DESK_COLUMNS, RAW_COLUMNS};
 use saltus::series;
@@ -14,14 +13,16 @@ use std::time::Instant;
 
 /// Arguments of `saltus price`.
 #[derive(clap::Args)]
-#[command(after_help = "Columns (by header name, any order, case-insensitive):\n  \
+#[command(
+    after_help = "Columns (by header name, any order, case-insensitive):\n  \
 required: kind, spot, strike, expiry, rate, vol, jump_rate, jump_mean, jump_vol\n  \
 optional: id, underlying, div_yield (0), quantity (1)\n\
 Appends: price, delta, gamma, vega, theta, rho, div_rho, d_jump_rate, d_jump_mean, \
 d_jump_vol, terms, status.\n\
 Greeks are raw partial derivatives per unit (vega per 1.00 of vol, theta per year);\n\
 --desk-units writes vega_1pt, theta_1d, rho_1pct, div_rho_1pct, d_jump_mean_1pct, d_jump_vol_1pct.\n\
-The book is streamed: memory does not grow with its size.")]
+The book is streamed: memory does not grow with its size."
+)]
 pub struct Args {
     /// The book (CSV); `-` reads standard input.
     pub book: PathBuf,
@@ -43,7 +44,11 @@ pub struct Args {
 /// Runs the command.
 pub fn run(args: Args) -> Result<ExitCode> {
     let start = Instant::now();
-    let names = if args.desk_units { DESK_COLUMNS } else { RAW_COLUMNS };
+    let names = if args.desk_units {
+        DESK_COLUMNS
+    } else {
+        RAW_COLUMNS
+    };
     let mut result_columns: Vec<String> = names.iter().map(|s| s.to_string()).collect();
     if args.with_bound {
         result_columns.push("truncation_bound".into());
@@ -58,14 +63,18 @@ pub fn run(args: Args) -> Result<ExitCode> {
     let with_bound = args.with_bound;
     let summary = run_book(input, output, &opts, |row, out| {
         let r = series::price(&row.contract).map_err(|e| e.to_string())?;
-        let values = if desk { r.greeks.desk_units() } else { r.greeks.headline() };
+        let values = if desk {
+            r.greeks.desk_units()
+        } else {
+            r.greeks.headline()
+        };
         for v in values {
-            push_f64(out, v);
+            out.push_f64(v);
         }
         if with_bound {
-            push_f64(out, r.truncation_bound);
+            out.push_f64(r.truncation_bound);
         }
-        push_u64(out, r.terms as u64);
+        out.push_u64(r.terms as u64);
         if r.greeks.price > 0.0 {
             let rel = r.truncation_bound / r.greeks.price;
             worst_rel_bound.fetch_max(rel.to_bits(), Ordering::Relaxed);

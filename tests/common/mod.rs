@@ -5,7 +5,10 @@ use std::path::PathBuf;
 
 /// Path of a file under `tests/data`.
 pub fn data(name: &str) -> PathBuf {
-    PathBuf::from(env!("CARGO_MANIFEST_DIR")).join("tests").join("data").join(name)
+    PathBuf::from(env!("CARGO_MANIFEST_DIR"))
+        .join("tests")
+        .join("data")
+        .join(name)
 }
 
 /// Reads a CSV fixture as header-keyed rows of strings.
@@ -15,14 +18,20 @@ pub fn read_fixture(name: &str) -> Vec<std::collections::HashMap<String, String>
     rdr.records()
         .map(|r| {
             let r = r.unwrap();
-            headers.iter().zip(r.iter()).map(|(h, v)| (h.to_string(), v.to_string())).collect()
+            headers
+                .iter()
+                .zip(r.iter())
+                .map(|(h, v)| (h.to_string(), v.to_string()))
+                .collect()
         })
         .collect()
 }
 
 /// Parses a fixture number (mpmath writes `nan` for "not computed").
 pub fn num(row: &std::collections::HashMap<String, String>, key: &str) -> f64 {
-    row[key].parse().unwrap_or_else(|_| panic!("{key} = {}", row[key]))
+    row[key]
+        .parse()
+        .unwrap_or_else(|_| panic!("{key} = {}", row[key]))
 }
 
 /// Builds a contract from a fixture row.
@@ -58,6 +67,19 @@ pub fn merton(
     mu: f64,
     delta: f64,
 ) -> Contract {
-    Contract::new(kind, s, k, t, r, q, sigma, JumpParams { rate: lam, mean: mu, vol: delta })
-        .unwrap()
+    Contract::new(
+        kind,
+        s,
+        k,
+        t,
+        r,
+        q,
+        sigma,
+        JumpParams {
+            rate: lam,
+            mean: mu,
+            vol: delta,
+        },
+    )
+    .unwrap()
 }
