@@ -14,8 +14,8 @@ import os
 import mpmath as mp
 
 mp.mp.dps = 40
-PIECES = 32
-DEG = 11
+PIECES = 64
+DEG = 8
 Y0 = mp.mpf(1) / 11
 
 
