@@ -6,6 +6,9 @@
 //! - [`black_scholes`]: the Black-Scholes kernel;
 //! - [`series`]: the closed-form Merton series with analytic Greeks;
 //! - [`greeks`]: the price-and-sensitivities value type and its units;
+//! - [`fourier`]: an independent price from the characteristic function (Lewis);
+//! - [`monte_carlo`]: exact-simulation Monte Carlo with importance sampling;
+//! - [`crosscheck`]: the three-engine comparison behind model validation;
 //! - [`book`]: the CSV book schema, streaming reader and writer.
 //!
 //! ```
@@ -20,8 +23,11 @@
 
 pub mod black_scholes;
 pub mod book;
+pub mod crosscheck;
+pub mod fourier;
 pub mod greeks;
 pub mod model;
+pub mod monte_carlo;
 #[rustfmt::skip]
 mod mills_table;
 pub mod normal;

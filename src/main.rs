@@ -26,6 +26,8 @@ struct Cli {
 enum Command {
     /// Price every row of a book with the closed-form series and all analytic Greeks.
     Price(cmd::price::Args),
+    /// Re-price every row by series, Fourier and Monte Carlo and compare (model validation).
+    Crosscheck(cmd::crosscheck::Args),
 }
 
 fn main() -> ExitCode {
@@ -41,6 +43,7 @@ fn main() -> ExitCode {
     }
     let result = match cli.command {
         Command::Price(args) => cmd::price::run(args),
+        Command::Crosscheck(args) => cmd::crosscheck::run(args),
     };
     match result {
         Ok(code) => code,

@@ -74,7 +74,7 @@ fn forward_is_recovered_by_a_zero_strike_limit() {
     for &(lam, mu, dl) in &[(0.5, -0.3, 0.2), (5.0, 0.1, 0.1), (300.0, -0.01, 0.03)] {
         let (s, k, t, r, q) = (100.0, 1e-6, 2.0, 0.04, 0.01);
         let c = price(Call, &[s, k, t, r, q, 0.2, lam, mu, dl]);
-        let want = (-r * t as f64).exp() * (s * ((r - q) * t as f64).exp() - k);
+        let want = (-r * t).exp() * (s * ((r - q) * t).exp() - k);
         assert!(
             (c.price - want).abs() < 1e-12 * s,
             "{lam}: {} vs {want}",

@@ -2,6 +2,9 @@
 //! against an outside reference named beside each check.
 
 mod common;
+mod crosscheck_cli;
+mod fourier;
 mod identities;
+mod monte_carlo;
 mod price_cli;
 mod reference;

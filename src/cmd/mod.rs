@@ -1,5 +1,6 @@
 //! One module per command; shared helpers for opening books and reporting.
 
+pub mod crosscheck;
 pub mod price;
 
 use anyhow::{Context, Result};

@@ -1,0 +1,272 @@
+//! `saltus crosscheck`: every row priced by the series, Fourier and Monte
+//! Carlo engines, with a per-row verdict and a validation summary on stderr.
+
+use super::{open_input, open_output, report_rows};
+use anyhow::{bail, Result};
+use indicatif::{ProgressBar, ProgressStyle};
+use saltus::book::{run_book, PipelineOptions};
+use saltus::crosscheck::{check, CheckConfig, CheckSummary, Outcome, SummaryRecord};
+use saltus::monte_carlo::{stream_key, IntensityChoice, McConfig, Work};
+use std::io::IsTerminal;
+use std::path::PathBuf;
+use std::process::ExitCode;
+use std::sync::Mutex;
+use std::time::Instant;
+
+/// Arguments of `saltus crosscheck`.
+#[derive(clap::Args)]
+#[command(
+    after_help = "Appends: price_series, price_fourier, price_mc, mc_stderr, mc_z, \
+fourier_gap, verdict, status.\n\
+verdict is 'agree', 'inconclusive: <why>' (an engine could not resolve the price, e.g. no \
+in-the-money Monte Carlo paths) or 'disagree: <why>'.\n\
+Each row's random stream is derived from --seed and the row's id, so results do not depend on \
+thread count, row order or how the book is split.\n\
+Exit codes: 0 all rows checked and at most --allow-disagree disagreements; 1 otherwise; 2 fatal error."
+)]
+pub struct Args {
+    /// The book (CSV); `-` reads standard input.
+    pub book: PathBuf,
+    /// Where to write the report; `-` or absent: standard output.
+    #[arg(short, long, value_name = "REPORT.csv")]
+    pub output: Option<PathBuf>,
+    /// Monte Carlo paths per row (antithetic pairs count as two).
+    #[arg(
+        long,
+        value_name = "N",
+        conflicts_with = "target_se",
+        default_value_t = 1_000_000
+    )]
+    pub paths: u64,
+    /// Keep adding paths until the standard error is below X (absolute), or
+    /// below X% of the price when written with a percent sign (e.g. 0.05%).
+    #[arg(long, value_name = "X")]
+    pub target_se: Option<String>,
+    /// Path cap per row for --target-se.
+    #[arg(long, value_name = "N", default_value_t = 1 << 26)]
+    pub max_paths: u64,
+    /// Seed of the random streams.
+    #[arg(long, value_name = "S", default_value_t = 20_261_201)]
+    pub seed: u64,
+    /// Fix the jump-intensity multiplier of the importance sampling (1 = none);
+    /// by default a pilot run chooses it per row.
+    #[arg(long, value_name = "G")]
+    pub gamma: Option<f64>,
+    /// Shift of the jump-size mean under the sampling law (default 0).
+    #[arg(
+        long,
+        value_name = "X",
+        default_value_t = 0.0,
+        allow_hyphen_values = true
+    )]
+    pub jump_mean_shift: f64,
+    /// Turn off antithetic variates.
+    #[arg(long)]
+    pub no_antithetic: bool,
+    /// Turn off the control variate.
+    #[arg(long)]
+    pub no_control: bool,
+    /// Largest accepted |z| of Monte Carlo against the series.
+    #[arg(long, value_name = "Z", default_value_t = 4.0)]
+    pub z_max: f64,
+    /// Largest accepted relative gap between the Fourier and series prices.
+    #[arg(long, value_name = "R", default_value_t = 1e-8)]
+    pub fourier_tol: f64,
+    /// Disagreeing rows tolerated before the exit code turns non-zero.
+    #[arg(long, value_name = "N", default_value_t = 0)]
+    pub allow_disagree: u64,
+    /// No progress bar and no summary on stderr.
+    #[arg(short, long)]
+    pub quiet: bool,
+}
+
+fn parse_target(s: &str) -> Result<Work> {
+    let t = s.trim();
+    let (num, rel) = match t.strip_suffix('%') {
+        Some(n) => (n.trim(), true),
+        None => (t, false),
+    };
+    let x: f64 = match num.parse() {
+        Ok(x) if x > 0.0 && f64::is_finite(x) => x,
+        _ => bail!("--target-se must be a positive number, optionally with %, got '{s}'"),
+    };
+    Ok(if rel {
+        Work::RelativeSe(x / 100.0)
+    } else {
+        Work::AbsoluteSe(x)
+    })
+}
+
+/// Turns the raw flags into a validated configuration.
+fn config(args: &Args) -> Result<CheckConfig> {
+    let work = match &args.target_se {
+        Some(t) => parse_target(t)?,
+        None => {
+            if args.paths < 2 {
+                bail!("--paths must be at least 2");
+            }
+            Work::Paths(args.paths)
+        }
+    };
+    let intensity = match args.gamma {
+        None => IntensityChoice::Auto,
+        Some(g) if g > 0.0 && g.is_finite() => IntensityChoice::Fixed(g),
+        Some(g) => bail!("--gamma must be a positive number, got {g}"),
+    };
+    let positive = |x: f64| x > 0.0 && x.is_finite();
+    if !positive(args.z_max) || !positive(args.fourier_tol) {
+        bail!("--z-max and --fourier-tol must be positive");
+    }
+    Ok(CheckConfig {
+        mc: McConfig {
+            work,
+            max_paths: args.max_paths,
+            seed: args.seed,
+            antithetic: !args.no_antithetic,
+            control_variate: !args.no_control,
+            intensity,
+            jump_mean_shift: args.jump_mean_shift,
+        },
+        z_max: args.z_max,
+        fourier_rel_tol: args.fourier_tol,
+    })
+}
+
+fn progress(args: &Args) -> ProgressBar {
+    if args.quiet || !std::io::stderr().is_terminal() {
+        return ProgressBar::hidden();
+    }
+    let total = if args.book.as_os_str() == "-" {
+        None
+    } else {
+        std::fs::read(&args.book)
+            .ok()
+            .map(|b| b.iter().filter(|&&c| c == b'\n').count() as u64)
+    };
+    match total {
+        Some(n) => ProgressBar::new(n.saturating_sub(1)).with_style(
+            ProgressStyle::with_template(
+                "{bar:40} {pos}/{len} rows  {elapsed} elapsed, {eta} left",
+            )
+            .expect("valid template"),
+        ),
+        None => ProgressBar::new_spinner(),
+    }
+}
+
+/// Runs the command.
+pub fn run(args: Args) -> Result<ExitCode> {
+    let start = Instant::now();
+    let cfg = config(&args)?;
+    let columns = [
+        "price_series",
+        "price_fourier",
+        "price_mc",
+        "mc_stderr",
+        "mc_z",
+        "fourier_gap",
+        "verdict",
+        "status",
+    ];
+    let opts = PipelineOptions {
+        result_columns: columns.iter().map(|s| s.to_string()).collect(),
+    };
+    let records = Mutex::new(Vec::new());
+    let bar = progress(&args);
+    let input = open_input(&args.book)?;
+    let output = open_output(args.output.as_deref())?;
+    let summary = run_book(input, output, &opts, |row, out| {
+        let key = stream_key(cfg.mc.seed, &row.id);
+        let r = check(&row.contract, key, &cfg).map_err(|e| e.to_string())?;
+        out.push_f64(r.price_series);
+        out.push_f64(r.fourier.price);
+        out.push_f64(r.mc.price);
+        out.push_f64(r.mc.std_error);
+        match r.mc_z {
+            Some(z) => out.push_f64(z),
+            None => out.push_empty(1),
+        }
+        out.push_f64(r.fourier_gap);
+        out.push_str(&r.verdict);
+        let rel = if r.price_series > 0.0 {
+            r.fourier_gap / r.price_series
+        } else {
+            0.0
+        };
+        records.lock().expect("records lock").push(SummaryRecord {
+            row: row.row,
+            id: row.id.clone(),
+            outcome: r.outcome,
+            z: r.mc_z,
+            fourier_rel_gap: rel,
+            paths: r.mc.paths,
+        });
+        bar.inc(1);
+        Ok(())
+    })?;
+    bar.finish_and_clear();
+    let check = CheckSummary::from_records(records.into_inner().expect("records lock"), 5);
+    if !args.quiet {
+        print_summary(&check, &cfg);
+        report_rows(&summary, "checked", start.elapsed().as_secs_f64());
+    }
+    let too_many = check.disagree > args.allow_disagree;
+    if too_many && !args.quiet {
+        eprintln!(
+            "saltus: {} rows disagree, more than the {} allowed (--allow-disagree)",
+            check.disagree, args.allow_disagree
+        );
+    }
+    Ok(if summary.failed > 0 || too_many {
+        ExitCode::from(1)
+    } else {
+        ExitCode::SUCCESS
+    })
+}
+
+fn print_summary(s: &CheckSummary, cfg: &CheckConfig) {
+    let agree = s.rows - s.disagree - s.inconclusive;
+    eprintln!("Cross-check of the Merton series against Fourier (Lewis) and Monte Carlo");
+    eprintln!("  rows checked          {}", s.rows);
+    eprintln!("  agree                 {agree}");
+    eprintln!("  inconclusive          {}", s.inconclusive);
+    eprintln!("  disagree (flagged)    {}", s.disagree);
+    eprintln!(
+        "  tolerances            |z| <= {}, |fourier gap| <= {:e} x price",
+        cfg.z_max, cfg.fourier_rel_tol
+    );
+    eprintln!(
+        "  Monte Carlo paths     {} in all, seed {}",
+        s.mc_paths, cfg.mc.seed
+    );
+    if s.z_count > 0 {
+        eprintln!(
+            "  z-scores              n = {}, mean {:+.3}, sd {:.3}, share |z| <= 1.96: {:.1}% (standard normal: 0, 1, 95%)",
+            s.z_count,
+            s.z_mean,
+            s.z_sd,
+            100.0 * s.z_within_196
+        );
+    }
+    if !s.worst_z.is_empty() {
+        eprintln!(
+            "  largest |z|           {}",
+            fmt_list(&s.worst_z, |z| format!("{z:+.2}"))
+        );
+    }
+    if !s.worst_fourier.is_empty() {
+        eprintln!(
+            "  largest Fourier gaps  {}",
+            fmt_list(&s.worst_fourier, |g| format!("{g:+.1e} rel"))
+        );
+    }
+    let _ = Outcome::Agree;
+}
+
+fn fmt_list(items: &[(u64, String, f64)], f: impl Fn(f64) -> String) -> String {
+    items
+        .iter()
+        .map(|(row, id, x)| format!("{id} (row {row}) {}", f(*x)))
+        .collect::<Vec<_>>()
+        .join(", ")
+}

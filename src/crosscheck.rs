@@ -1,0 +1,245 @@
+//! Model validation: one contract priced by the series, Fourier and Monte
+//! Carlo engines, the differences measured against each engine's own error
+//! estimate, and a verdict.
+//!
+//! # Verdict rules
+//! - Fourier agrees when `|price_fourier - price_series| <= tol`, with
+//!   `tol = max(fourier_rel_tol * price_series, ABS_FLOOR * spot)`. When the
+//!   Fourier engine's own error estimate exceeds `tol`, the Fourier check is
+//!   *inconclusive* (short expiries without diffusion, far wings) rather
+//!   than failed.
+//! - Monte Carlo agrees when `|z| <= z_max`, `z = (price_mc - price_series) / mc_stderr`.
+//!   With fewer than [`MIN_MC_HITS`] in-the-money paths the standard error
+//!   itself is not trustworthy and the check is inconclusive. A zero standard
+//!   error (the control variate replicates the payoff exactly, e.g. a call
+//!   that is always exercised) is compared with the same absolute floor.
+//! - The row's verdict is `disagree: ...` if any check fails, `inconclusive: ...`
+//!   if none fails but one could not decide, otherwise `agree`.
+
+use crate::fourier::{self, FourierResult};
+use crate::model::Contract;
+use crate::monte_carlo::{self, McConfig, McEstimate};
+use crate::series;
+
+/// Smallest number of in-the-money Monte Carlo paths for a verdict.
+pub const MIN_MC_HITS: u64 = 100;
+/// Absolute floor of every comparison, as a fraction of spot (rounding level).
+pub const ABS_FLOOR: f64 = 1e-12;
+
+/// Cross-check settings.
+#[derive(Debug, Clone)]
+pub struct CheckConfig {
+    /// Monte Carlo settings (work, seed, variance reduction).
+    pub mc: McConfig,
+    /// Largest accepted |z| of Monte Carlo against the series.
+    pub z_max: f64,
+    /// Largest accepted relative Fourier-minus-series gap.
+    pub fourier_rel_tol: f64,
+}
+
+impl Default for CheckConfig {
+    fn default() -> Self {
+        CheckConfig {
+            mc: McConfig::default(),
+            z_max: 4.0,
+            fourier_rel_tol: 1e-8,
+        }
+    }
+}
+
+/// Outcome of one check.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, PartialOrd, Ord)]
+pub enum Outcome {
+    /// Within tolerance.
+    Agree,
+    /// The engine could not resolve the price well enough to decide.
+    Inconclusive,
+    /// Outside tolerance.
+    Disagree,
+}
+
+/// Everything the cross-check found for one contract.
+#[derive(Debug, Clone, PartialEq)]
+pub struct RowCheck {
+    /// Series price.
+    pub price_series: f64,
+    /// Fourier result.
+    pub fourier: FourierResult,
+    /// Monte Carlo result.
+    pub mc: McEstimate,
+    /// `(price_mc - price_series) / mc_stderr`, when defined.
+    pub mc_z: Option<f64>,
+    /// `price_fourier - price_series`.
+    pub fourier_gap: f64,
+    /// Worst of the two outcomes.
+    pub outcome: Outcome,
+    /// `agree`, `inconclusive: ...` or `disagree: ...`.
+    pub verdict: String,
+}
+
+/// Prices a contract with the three engines and compares them.
+///
+/// # Errors
+/// Only if the series engine fails (it does not for validated contracts).
+pub fn check(c: &Contract, key: u64, cfg: &CheckConfig) -> Result<RowCheck, series::SeriesError> {
+    let s = series::price(c)?.greeks.price;
+    let f = fourier::price(c);
+    let m = monte_carlo::price(c, key, &cfg.mc);
+    let floor = ABS_FLOOR * c.spot;
+    let tol = (cfg.fourier_rel_tol * s).max(floor);
+    let gap = f.price - s;
+    let mut fails = Vec::new();
+    let mut unsure = Vec::new();
+    if gap.abs() > tol {
+        if f.error_estimate > tol {
+            unsure.push(format!(
+                "fourier error estimate {:.1e} above tolerance",
+                f.error_estimate
+            ));
+        } else {
+            fails.push(format!("fourier gap {gap:.3e} beyond {tol:.1e}"));
+        }
+    } else if f.error_estimate > tol {
+        unsure.push(format!(
+            "fourier error estimate {:.1e} above tolerance",
+            f.error_estimate
+        ));
+    }
+    let diff = m.price - s;
+    let mc_z = if m.std_error > 0.0 {
+        Some(diff / m.std_error)
+    } else {
+        None
+    };
+    if c.expiry > 0.0 && m.hits < MIN_MC_HITS {
+        unsure.push(format!("mc saw {} in-the-money paths", m.hits));
+    } else {
+        match mc_z {
+            Some(z) if z.abs() > cfg.z_max && diff.abs() > floor => {
+                fails.push(format!("mc z = {z:.2} beyond {}", cfg.z_max))
+            }
+            None if diff.abs() > floor.max(1e-10 * s) => {
+                fails.push(format!("mc differs by {diff:.3e} with zero standard error"))
+            }
+            _ => {}
+        }
+    }
+    let (outcome, verdict) = if !fails.is_empty() {
+        (Outcome::Disagree, format!("disagree: {}", fails.join("; ")))
+    } else if !unsure.is_empty() {
+        (
+            Outcome::Inconclusive,
+            format!("inconclusive: {}", unsure.join("; ")),
+        )
+    } else {
+        (Outcome::Agree, "agree".to_string())
+    };
+    Ok(RowCheck {
+        price_series: s,
+        fourier: f,
+        mc: m,
+        mc_z,
+        fourier_gap: gap,
+        outcome,
+        verdict,
+    })
+}
+
+/// Book-level summary of a cross-check, built from per-row records sorted
+/// by row so that it does not depend on the processing order.
+#[derive(Debug, Clone, Default)]
+pub struct CheckSummary {
+    /// Rows checked.
+    pub rows: u64,
+    /// Rows whose verdict is `disagree`.
+    pub disagree: u64,
+    /// Rows whose verdict is `inconclusive`.
+    pub inconclusive: u64,
+    /// Mean of the defined z-scores.
+    pub z_mean: f64,
+    /// Sample standard deviation of the defined z-scores.
+    pub z_sd: f64,
+    /// Number of defined z-scores.
+    pub z_count: u64,
+    /// Share of defined z-scores with |z| <= 1.96 (about 0.95 if error bars are honest).
+    pub z_within_196: f64,
+    /// Largest |z|: (row, id, z).
+    pub worst_z: Vec<(u64, String, f64)>,
+    /// Largest relative Fourier gaps: (row, id, gap / price).
+    pub worst_fourier: Vec<(u64, String, f64)>,
+    /// Total Monte Carlo paths.
+    pub mc_paths: u64,
+}
+
+/// One row's contribution to the summary.
+#[derive(Debug, Clone)]
+pub struct SummaryRecord {
+    /// Row number.
+    pub row: u64,
+    /// Row id.
+    pub id: String,
+    /// Outcome.
+    pub outcome: Outcome,
+    /// z-score, if defined.
+    pub z: Option<f64>,
+    /// Fourier gap relative to the series price.
+    pub fourier_rel_gap: f64,
+    /// Monte Carlo paths.
+    pub paths: u64,
+}
+
+impl CheckSummary {
+    /// Builds the summary; `records` may come in any order.
+    pub fn from_records(mut records: Vec<SummaryRecord>, top: usize) -> CheckSummary {
+        records.sort_by_key(|r| r.row);
+        let mut s = CheckSummary {
+            rows: records.len() as u64,
+            ..Default::default()
+        };
+        let zs: Vec<f64> = records.iter().filter_map(|r| r.z).collect();
+        s.z_count = zs.len() as u64;
+        if !zs.is_empty() {
+            let n = zs.len() as f64;
+            s.z_mean = zs.iter().sum::<f64>() / n;
+            s.z_sd = if zs.len() > 1 {
+                (zs.iter().map(|z| (z - s.z_mean).powi(2)).sum::<f64>() / (n - 1.0)).sqrt()
+            } else {
+                0.0
+            };
+            s.z_within_196 = zs.iter().filter(|z| z.abs() <= 1.96).count() as f64 / n;
+        }
+        for r in &records {
+            match r.outcome {
+                Outcome::Disagree => s.disagree += 1,
+                Outcome::Inconclusive => s.inconclusive += 1,
+                Outcome::Agree => {}
+            }
+            s.mc_paths += r.paths;
+        }
+        let mut by_z: Vec<&SummaryRecord> = records.iter().filter(|r| r.z.is_some()).collect();
+        by_z.sort_by(|a, b| {
+            b.z.unwrap()
+                .abs()
+                .total_cmp(&a.z.unwrap().abs())
+                .then(a.row.cmp(&b.row))
+        });
+        s.worst_z = by_z
+            .iter()
+            .take(top)
+            .map(|r| (r.row, r.id.clone(), r.z.unwrap()))
+            .collect();
+        let mut by_f: Vec<&SummaryRecord> = records.iter().collect();
+        by_f.sort_by(|a, b| {
+            b.fourier_rel_gap
+                .abs()
+                .total_cmp(&a.fourier_rel_gap.abs())
+                .then(a.row.cmp(&b.row))
+        });
+        s.worst_fourier = by_f
+            .iter()
+            .take(top)
+            .map(|r| (r.row, r.id.clone(), r.fourier_rel_gap))
+            .collect();
+        s
+    }
+}
