@@ -111,7 +111,7 @@ mod tests {
 
     #[test]
     fn small_cases_match_the_definition() {
-        for &mu in &[0.1, 1.0, 2.5, 10.0] {
+        for &mu in &[0.1f64, 1.0, 2.5, 10.0] {
             let mut direct = (-mu).exp();
             for n in 0..30u64 {
                 if n > 0 {
