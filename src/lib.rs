@@ -6,6 +6,7 @@
 //! - [`black_scholes`]: the Black-Scholes kernel;
 //! - [`series`]: the closed-form Merton series with analytic Greeks;
 //! - [`greeks`]: the price-and-sensitivities value type and its units;
+//! - [`engine`]: the common engine interface; [`finite_diff`]: bump-and-reprice Greeks on any engine;
 //! - [`fourier`]: an independent price from the characteristic function (Lewis);
 //! - [`monte_carlo`]: exact-simulation Monte Carlo with importance sampling;
 //! - [`crosscheck`]: the three-engine comparison behind model validation;
@@ -24,6 +25,8 @@
 pub mod black_scholes;
 pub mod book;
 pub mod crosscheck;
+pub mod engine;
+pub mod finite_diff;
 pub mod fourier;
 pub mod greeks;
 pub mod model;

@@ -28,6 +28,8 @@ enum Command {
     Price(cmd::price::Args),
     /// Re-price every row by series, Fourier and Monte Carlo and compare (model validation).
     Crosscheck(cmd::crosscheck::Args),
+    /// Greeks by analytic formula and/or bump-and-reprice on any engine, compared.
+    Greeks(cmd::greeks::Args),
 }
 
 fn main() -> ExitCode {
@@ -44,6 +46,7 @@ fn main() -> ExitCode {
     let result = match cli.command {
         Command::Price(args) => cmd::price::run(args),
         Command::Crosscheck(args) => cmd::crosscheck::run(args),
+        Command::Greeks(args) => cmd::greeks::run(args),
     };
     match result {
         Ok(code) => code,

@@ -92,6 +92,11 @@ pub struct McConfig {
     pub intensity: IntensityChoice,
     /// Shift of the jump-size mean under the sampling law (0: none).
     pub jump_mean_shift: f64,
+    /// Fixes the mean jump count `lambda~ T` of the sampling law, overriding
+    /// `intensity`. Bump-and-reprice uses it so that bumped contracts share
+    /// the same jump counts (common random numbers) and a change of `lambda`
+    /// or `T` only changes the likelihood weights, smoothly.
+    pub sampling_count_mean: Option<f64>,
 }
 
 impl Default for McConfig {
@@ -104,6 +109,7 @@ impl Default for McConfig {
             control_variate: true,
             intensity: IntensityChoice::Auto,
             jump_mean_shift: 0.0,
+            sampling_count_mean: None,
         }
     }
 }
@@ -334,19 +340,28 @@ struct Simulation {
 }
 
 impl Simulation {
-    fn new(c: &Contract, gamma: f64, shift: f64, antithetic: bool) -> Self {
-        let lam = c.jumps.rate;
+    /// `count_mean` is the mean jump count `lambda~ T` of the sampling law.
+    fn new(c: &Contract, count_mean: f64, shift: f64, antithetic: bool) -> Self {
         let t = c.expiry;
-        let lam_s = gamma * lam;
+        let lam_t = c.jump_intensity();
         let mu_s = c.jumps.mean + shift;
-        let (log_ratio, weight_const) = if lam > 0.0 {
-            ((1.0 / gamma).ln(), (lam_s - lam) * t)
-        } else {
+        // Weight of n jumps: (lambda T / M)^n exp(M - lambda T).
+        let (log_ratio, weight_const) = if count_mean == 0.0 {
             (0.0, 0.0)
+        } else if lam_t == 0.0 {
+            (f64::NEG_INFINITY, count_mean)
+        } else {
+            ((lam_t / count_mean).ln(), count_mean - lam_t)
         };
-        let weight_table = (0..TABLE_N)
-            .map(|n| (n as f64 * log_ratio + weight_const).exp())
-            .collect();
+        let lam_s = if t > 0.0 { count_mean / t } else { 0.0 };
+        let weight_of = move |n: f64| {
+            if n == 0.0 {
+                weight_const.exp()
+            } else {
+                (n * log_ratio + weight_const).exp()
+            }
+        };
+        let weight_table = (0..TABLE_N).map(|n| weight_of(n as f64)).collect();
         let shift = if shift != 0.0 && c.jumps.vol > 0.0 {
             let d2 = c.jumps.vol * c.jumps.vol;
             Some((
@@ -382,6 +397,7 @@ impl Simulation {
         } else {
             (n as f64 * self.log_ratio + self.weight_const).exp()
         };
+        // (n >= TABLE_N > 0 here, so log_ratio = -inf gives exp(-inf) = 0.)
         match self.shift {
             Some((a, b)) => base * (a * jumps - n as f64 * b).exp(),
             None => base,
@@ -530,12 +546,15 @@ pub fn price(c: &Contract, key: u64, cfg: &McConfig) -> McEstimate {
         };
     }
     let control_mean = c.spot * (-c.div_yield * c.expiry).exp();
-    let gamma = match cfg.intensity {
-        IntensityChoice::Fixed(g) => g,
-        IntensityChoice::Auto if c.jumps.rate == 0.0 => 1.0,
-        IntensityChoice::Auto => choose_gamma(c, key, cfg, control_mean),
+    let lam_t = c.jump_intensity();
+    let (gamma, count_mean) = match cfg.sampling_count_mean {
+        Some(m) => (if lam_t > 0.0 { m / lam_t } else { 1.0 }, m),
+        None => {
+            let g = choose_intensity(c, key, cfg);
+            (g, g * lam_t)
+        }
     };
-    let sim = Simulation::new(c, gamma, cfg.jump_mean_shift, cfg.antithetic);
+    let sim = Simulation::new(c, count_mean, cfg.jump_mean_shift, cfg.antithetic);
     let paths_per_block = if cfg.antithetic {
         2 * BLOCK_PAIRS
     } else {
@@ -599,6 +618,18 @@ pub fn price(c: &Contract, key: u64, cfg: &McConfig) -> McEstimate {
     }
 }
 
+/// The intensity multiplier `gamma` that [`price`] would use for this
+/// contract: the fixed one, 1 without jumps, or the pilot run's choice.
+pub fn choose_intensity(c: &Contract, key: u64, cfg: &McConfig) -> f64 {
+    match cfg.intensity {
+        IntensityChoice::Fixed(g) => g,
+        IntensityChoice::Auto if c.jumps.rate == 0.0 => 1.0,
+        IntensityChoice::Auto => {
+            choose_gamma(c, key, cfg, c.spot * (-c.div_yield * c.expiry).exp())
+        }
+    }
+}
+
 /// Pilot run: the intensity multiplier with the smallest estimated variance
 /// per path among candidates whose pilot saw enough non-zero payoffs and
 /// whose weights have a moderate second moment
@@ -612,7 +643,7 @@ fn choose_gamma(c: &Contract, key: u64, cfg: &McConfig, control_mean: f64) -> f6
         if lam_t * (g - 1.0).powi(2) / g > MAX_LOG_WEIGHT_SECOND_MOMENT {
             continue;
         }
-        let sim = Simulation::new(c, g, cfg.jump_mean_shift, cfg.antithetic);
+        let sim = Simulation::new(c, g * lam_t, cfg.jump_mean_shift, cfg.antithetic);
         let mut rng = ChaCha8Rng::seed_from_u64(key);
         rng.set_stream(PILOT_STREAM);
         let m = sim.run_block(&mut rng, PILOT_PAIRS);

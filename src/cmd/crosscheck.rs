@@ -126,6 +126,7 @@ fn config(args: &Args) -> Result<CheckConfig> {
             control_variate: !args.no_control,
             intensity,
             jump_mean_shift: args.jump_mean_shift,
+            sampling_count_mean: None,
         },
         z_max: args.z_max,
         fourier_rel_tol: args.fourier_tol,

@@ -1,6 +1,7 @@
 //! One module per command; shared helpers for opening books and reporting.
 
 pub mod crosscheck;
+pub mod greeks;
 pub mod price;
 
 use anyhow::{Context, Result};
