@@ -10,7 +10,7 @@
 //! common random numbers and a bump of `lambda` or `T` only re-weights paths.
 //!
 //! Alongside each Greek a noise estimate is returned: the engine's own error
-//! measure propagated through the difference formula (`4 err / h` for first
+//! measure (at least four ulps of spot plus strike) propagated through the difference formula (`4 err / h` for first
 //! order, `4 err / h^2` for second), which is what a comparison tolerance
 //! must allow for on top of the truncation error.
 
@@ -260,11 +260,14 @@ pub fn greeks(
     cfg: &FdConfig,
 ) -> Result<FdGreeks, String> {
     let base = engine.price(c)?;
+    // The engine's own error, but never below the rounding of the price,
+    // which is a difference of terms of the size of spot and strike.
+    let rounding = 4.0 * f64::EPSILON * (base.price.abs() + c.spot + c.strike);
     let b = Bumper {
         engine,
         base: *c,
         base_price: base.price,
-        error: base.error,
+        error: base.error.max(rounding),
     };
     let r = cfg.richardson;
     let h = |p: Param| cfg.bumps.step(p, c);

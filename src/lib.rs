@@ -10,6 +10,7 @@
 //! - [`fourier`]: an independent price from the characteristic function (Lewis);
 //! - [`monte_carlo`]: exact-simulation Monte Carlo with importance sampling;
 //! - [`crosscheck`]: the three-engine comparison behind model validation;
+//! - [`risk`]: exposures and full-revaluation scenarios; [`report`]: CSV and HTML output;
 //! - [`book`]: the CSV book schema, streaming reader and writer.
 //!
 //! ```
@@ -35,4 +36,6 @@ pub mod monte_carlo;
 mod mills_table;
 pub mod normal;
 pub mod poisson;
+pub mod report;
+pub mod risk;
 pub mod series;

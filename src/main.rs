@@ -30,6 +30,8 @@ enum Command {
     Crosscheck(cmd::crosscheck::Args),
     /// Greeks by analytic formula and/or bump-and-reprice on any engine, compared.
     Greeks(cmd::greeks::Args),
+    /// Exposures by underlying, full-revaluation scenarios, CSV files and an HTML report.
+    Risk(cmd::risk::Args),
 }
 
 fn main() -> ExitCode {
@@ -47,6 +49,7 @@ fn main() -> ExitCode {
         Command::Price(args) => cmd::price::run(args),
         Command::Crosscheck(args) => cmd::crosscheck::run(args),
         Command::Greeks(args) => cmd::greeks::run(args),
+        Command::Risk(args) => cmd::risk::run(args),
     };
     match result {
         Ok(code) => code,

@@ -3,8 +3,10 @@
 
 mod common;
 mod crosscheck_cli;
+mod finite_diff;
 mod fourier;
 mod identities;
 mod monte_carlo;
 mod price_cli;
 mod reference;
+mod risk_cli;

@@ -229,7 +229,7 @@ pub fn run(args: Args) -> Result<ExitCode> {
                 {
                     let diff = gf - ga;
                     let tol = rel_tol * ga.abs() + floor(GREEKS[i], c.spot) + noise;
-                    let bad = !(diff.abs() <= tol);
+                    let bad = diff.is_nan() || diff.abs() > tol;
                     out.push_f64(ga);
                     out.push_f64(gf);
                     out.push_f64(diff.abs());

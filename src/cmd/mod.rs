@@ -3,6 +3,7 @@
 pub mod crosscheck;
 pub mod greeks;
 pub mod price;
+pub mod risk;
 
 use anyhow::{Context, Result};
 use saltus::book::BookSummary;
