@@ -57,7 +57,7 @@ fn main() -> ExitCode {
             if cmd::is_broken_pipe(&e) {
                 return ExitCode::SUCCESS;
             }
-            eprintln!("saltus: error: {e:#}");
+            eprintln!("saltus: error: {}", cmd::error_chain(&e));
             ExitCode::from(2)
         }
     }

@@ -232,3 +232,31 @@ fn thread_count_does_not_change_digits() {
         .stdout;
     assert_eq!(one, two);
 }
+
+#[test]
+fn windows_line_endings_keep_line_numbers_right() {
+    let book = format!(
+        "{}\r\ncall,100,95,0.5,0.03,0.2,0.5,-0.1,0.15\r\nput,100,95,0.5,0.03,-1,0.5,-0.1,0.15\r\n",
+        HEADER
+    );
+    let out = saltus()
+        .args(["price", "-"])
+        .write_stdin(book)
+        .output()
+        .unwrap();
+    let (h, rows) = read_csv(&String::from_utf8(out.stdout).unwrap());
+    assert_eq!(
+        rows[1][col(&h, "status")],
+        "error: line 3: vol must not be negative, got -1"
+    );
+}
+
+#[test]
+fn a_directory_is_reported_once_and_clearly() {
+    let dir = tempfile::tempdir().unwrap();
+    let out = saltus().arg("price").arg(dir.path()).output().unwrap();
+    assert_eq!(out.status.code(), Some(2));
+    let err = String::from_utf8(out.stderr).unwrap();
+    assert!(err.contains("it is a directory"), "{err}");
+    assert_eq!(err.matches("directory").count(), 1, "{err}");
+}

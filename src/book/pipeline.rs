@@ -7,6 +7,7 @@
 //! whatever the size of the book. Chunking never changes a result: rows are
 //! processed independently.
 
+use super::lines::LineCounter;
 use super::reader::{parse_row, BookRow, RowError};
 use super::schema::{Schema, SchemaError};
 use super::writer::{write_field, RowWriter};
@@ -82,10 +83,11 @@ where
     W: Write + Send,
     F: Fn(&BookRow, &mut RowWriter) -> Result<(), String> + Sync,
 {
+    let (counted, lines) = LineCounter::new(input);
     let mut reader = csv::ReaderBuilder::new()
         .has_headers(true)
         .flexible(true)
-        .from_reader(input);
+        .from_reader(counted);
     let headers = reader.byte_headers()?.clone();
     let schema = Schema::from_headers(&headers)?;
     let n_results = opts.result_columns.len();
@@ -160,7 +162,7 @@ where
                     match reader.read_byte_record(rec) {
                         Ok(true) => {
                             row += 1;
-                            *line = rec.position().map(|p| p.line()).unwrap_or(0);
+                            *line = rec.position().map(|p| lines.line_of(p.byte())).unwrap_or(0);
                             len += 1;
                         }
                         Ok(false) => break,

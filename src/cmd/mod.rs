@@ -18,6 +18,9 @@ pub fn open_input(path: &Path) -> Result<Box<dyn Read + Send>> {
         Ok(Box::new(BufReader::with_capacity(1 << 20, io::stdin())))
     } else {
         let f = File::open(path).with_context(|| format!("cannot open {}", path.display()))?;
+        if f.metadata().is_ok_and(|m| m.is_dir()) {
+            anyhow::bail!("cannot read {}: it is a directory", path.display());
+        }
         Ok(Box::new(BufReader::with_capacity(1 << 20, f)))
     }
 }
@@ -36,6 +39,20 @@ pub fn open_output(path: Option<&Path>) -> Result<Box<dyn Write + Send>> {
             Ok(Box::new(BufWriter::with_capacity(1 << 16, f)))
         }
     }
+}
+
+/// The error and its causes joined by `: `, skipping a cause whose text the
+/// previous message already contains (the csv crate repeats its I/O cause).
+pub fn error_chain(e: &anyhow::Error) -> String {
+    let mut out: Vec<String> = Vec::new();
+    for cause in e.chain() {
+        let msg = cause.to_string();
+        if out.last().is_some_and(|prev| prev.contains(&msg)) {
+            continue;
+        }
+        out.push(msg);
+    }
+    out.join(": ")
 }
 
 /// True when the error chain holds a broken pipe (the reader went away).
