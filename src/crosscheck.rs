@@ -9,10 +9,15 @@
 //!   *inconclusive* (short expiries without diffusion, far wings) rather
 //!   than failed.
 //! - Monte Carlo agrees when `|z| <= z_max`, `z = (price_mc - price_series) / mc_stderr`.
-//!   With fewer than [`MIN_MC_HITS`] in-the-money paths the standard error
-//!   itself is not trustworthy and the check is inconclusive. A zero standard
-//!   error (the control variate replicates the payoff exactly, e.g. a call
-//!   that is always exercised) is compared with the same absolute floor.
+//!   When the simulated discounted terminal price misses its known mean by
+//!   more than 5 standard errors (martingale test), the sample is not
+//!   representative (extremely heavy tails) and the check is inconclusive.
+//!   With fewer than [`MIN_MC_HITS`] in-the-money paths, or an effective
+//!   sample size of the weights below [`MIN_MC_ESS`], the standard error
+//!   itself is not trustworthy and the check is inconclusive. A degenerate
+//!   standard error (the control variate replicates every simulated payoff,
+//!   e.g. an option that was exercised on every path) agrees within the
+//!   absolute floor and is inconclusive otherwise.
 //! - The row's verdict is `disagree: ...` if any check fails, `inconclusive: ...`
 //!   if none fails but one could not decide, otherwise `agree`.
 
@@ -23,6 +28,8 @@ use crate::series;
 
 /// Smallest number of in-the-money Monte Carlo paths for a verdict.
 pub const MIN_MC_HITS: u64 = 100;
+/// Smallest effective sample size of the likelihood weights for a verdict.
+pub const MIN_MC_ESS: f64 = 1000.0;
 /// Absolute floor of every comparison, as a fraction of spot (rounding level).
 pub const ABS_FLOOR: f64 = 1e-12;
 
@@ -111,17 +118,31 @@ pub fn check(c: &Contract, key: u64, cfg: &CheckConfig) -> Result<RowCheck, seri
     } else {
         None
     };
-    if c.expiry > 0.0 && m.hits < MIN_MC_HITS {
+    // A relative standard error below 1e-9 with a million paths would need a
+    // variance reduction of 1e18: only a control that replicates every
+    // simulated payoff does that.
+    let degenerate_se = m.std_error <= 1e-9 * s.max(floor);
+    if c.expiry > 0.0 && m.martingale_z.abs() > 5.0 {
+        unsure.push(format!(
+            "mc sample misses the paths that carry the forward (martingale test z = {:.1})",
+            m.martingale_z
+        ));
+    } else if c.expiry > 0.0 && m.hits < MIN_MC_HITS {
         unsure.push(format!("mc saw {} in-the-money paths", m.hits));
-    } else {
-        match mc_z {
-            Some(z) if z.abs() > cfg.z_max && diff.abs() > floor => {
-                fails.push(format!("mc z = {z:.2} beyond {}", cfg.z_max))
-            }
-            None if diff.abs() > floor.max(1e-10 * s) => {
-                fails.push(format!("mc differs by {diff:.3e} with zero standard error"))
-            }
-            _ => {}
+    } else if c.expiry > 0.0 && m.ess < MIN_MC_ESS {
+        unsure.push(format!("mc effective sample size {:.0}", m.ess));
+    } else if degenerate_se {
+        // The control replicated every simulated payoff: the paths that
+        // would differ were never drawn, so the error bar says nothing.
+        if diff.abs() > floor.max(1e-10 * s) {
+            unsure.push(format!(
+                "mc standard error {:.1e} is degenerate (every path replicated by the control)",
+                m.std_error
+            ));
+        }
+    } else if let Some(z) = mc_z {
+        if z.abs() > cfg.z_max && diff.abs() > floor {
+            fails.push(format!("mc z = {z:.2} beyond {}", cfg.z_max));
         }
     }
     let (outcome, verdict) = if !fails.is_empty() {

@@ -42,7 +42,9 @@ const PILOT_STREAM: u64 = u64::MAX;
 /// Pairs in the pilot run.
 const PILOT_PAIRS: u64 = 16_384;
 /// Intensity multipliers tried by the pilot.
-const GAMMA_CANDIDATES: [f64; 10] = [0.25, 0.5, 1.0, 1.5, 2.0, 3.0, 5.0, 8.0, 12.0, 20.0];
+const GAMMA_CANDIDATES: [f64; 13] = [
+    0.25, 0.5, 0.8, 1.0, 1.25, 1.5, 2.0, 3.0, 5.0, 8.0, 12.0, 20.0, 40.0,
+];
 /// A pilot candidate needs this many non-zero payoffs to be trusted.
 const PILOT_MIN_HITS: u64 = 20;
 /// Largest admissible `ln E_Q[w^2] = lambda T (gamma - 1)^2 / gamma`: the
@@ -139,6 +141,11 @@ pub struct McEstimate {
     pub ess: f64,
     /// Paths that ended in the money (non-zero payoff).
     pub hits: u64,
+    /// Martingale test: `(mean of w e^{-rT} S_T - S e^{-qT}) / its standard error`.
+    /// Far from 0 (beyond 5) the sample misses the paths that carry the
+    /// forward (extremely heavy tails) and the error bars are not trustworthy;
+    /// the control variate is then not applied.
+    pub martingale_z: f64,
 }
 
 /// Derives a row's stream key from the seed and the row id (FNV-1a of the id,
@@ -505,6 +512,22 @@ impl Simulation {
     }
 }
 
+/// `(sample mean of the control - its known mean) / standard error`.
+fn martingale_z(m: &Moments, control_mean: f64) -> f64 {
+    if m.n < 2.0 {
+        return 0.0;
+    }
+    let se = (m.m2_c / (m.n - 1.0) / m.n).sqrt();
+    let d = m.mean_c - control_mean;
+    if se > 0.0 {
+        d / se
+    } else if d.abs() <= 1e-12 * control_mean.abs() {
+        0.0
+    } else {
+        f64::INFINITY.copysign(d)
+    }
+}
+
 /// Turns merged moments into an estimate.
 fn estimate(m: &Moments, control_mean: f64, use_cv: bool) -> (f64, f64, f64) {
     let n = m.n;
@@ -514,7 +537,13 @@ fn estimate(m: &Moments, control_mean: f64, use_cv: bool) -> (f64, f64, f64) {
     let var_x = m.m2_x / (n - 1.0);
     let var_c = m.m2_c / (n - 1.0);
     let cov = m.c_xc / (n - 1.0);
-    if use_cv && var_c > 0.0 {
+    // The control is only used when its sample mean is consistent with its
+    // known mean (within 5 standard errors, common practice for a sanity
+    // check): with very heavy-tailed terminal prices (huge jump intensity and
+    // large jumps) the sample misses the paths that carry E[S_T], and the
+    // adjustment would then add error instead of removing it.
+    let control_consistent = martingale_z(m, control_mean).abs() <= 5.0;
+    if use_cv && var_c > 0.0 && control_consistent {
         let beta = cov / var_c;
         let price = m.mean_x - beta * (m.mean_c - control_mean);
         let var = (var_x - cov * cov / var_c).max(0.0);
@@ -543,6 +572,7 @@ pub fn price(c: &Contract, key: u64, cfg: &McConfig) -> McEstimate {
             variance_reduction: 1.0,
             ess: 0.0,
             hits: 0,
+            martingale_z: 0.0,
         };
     }
     let control_mean = c.spot * (-c.div_yield * c.expiry).exp();
@@ -615,6 +645,7 @@ pub fn price(c: &Contract, key: u64, cfg: &McConfig) -> McEstimate {
             0.0
         },
         hits: m.hits,
+        martingale_z: martingale_z(&m, control_mean),
     }
 }
 

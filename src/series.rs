@@ -47,14 +47,25 @@ pub struct SeriesResult {
     pub truncation_bound: f64,
 }
 
-/// The series engine failed to converge (only possible past the hard cap).
+/// The series engine could not give a trustworthy answer.
 #[derive(Debug, Clone, PartialEq, thiserror::Error)]
-#[error("series did not converge within {terms} terms (bound {bound:e})")]
-pub struct SeriesError {
-    /// Terms evaluated.
-    pub terms: usize,
-    /// Truncation bound reached.
-    pub bound: f64,
+#[non_exhaustive]
+pub enum SeriesError {
+    /// The hard cap on terms was reached.
+    #[error("series did not converge within {terms} terms (bound {bound:e})")]
+    NotConverged {
+        /// Terms evaluated.
+        terms: usize,
+        /// Truncation bound reached.
+        bound: f64,
+    },
+    /// A result overflowed double precision (extreme jump sizes with a huge
+    /// jump intensity): reported instead of returning a wrong number.
+    #[error("series result is not representable in double precision ({what})")]
+    Overflow {
+        /// Which quantity failed.
+        what: &'static str,
+    },
 }
 
 /// Running sums over the series terms. See the module docs for the meaning.
@@ -124,7 +135,9 @@ impl Setup {
             let d1 = x * inv_v + 0.5 * v;
             let d2 = d1 - v;
             let phi = norm_pdf(d1);
-            let phi2 = if x.abs() < MONEYNESS_RECURSION_LIMIT {
+            // The recursion can start from an overflowed or underflowed
+            // exp(x_n0) when lambda T is huge; then use the direct form.
+            let phi2 = if x.abs() < MONEYNESS_RECURSION_LIMIT && wt.fk.is_normal() {
                 phi * wt.fk
             } else {
                 norm_pdf(d2)
@@ -309,7 +322,7 @@ pub fn price(c: &Contract) -> Result<SeriesResult, SeriesError> {
         }
         if terms >= SERIES_MAX_TERMS {
             let bound = scale * (up_num / up_den.max(0.0) + lo_num / lo_den.max(0.0));
-            return Err(SeriesError { terms, bound });
+            return Err(SeriesError::NotConverged { terms, bound });
         }
         // Extend the side whose remaining bound is larger.
         let lower_larger = lo_den <= 0.0 || (up_den > 0.0 && lo_num * up_den >= up_num * lo_den);
@@ -334,7 +347,12 @@ pub fn price(c: &Contract) -> Result<SeriesResult, SeriesError> {
     let s = &sums;
     let sigma = c.vol;
     let delta_j = c.jumps.vol;
-    let price = (w * (se * s.pa - kd * s.pb)).max(0.0);
+    let raw_price = w * (se * s.pa - kd * s.pb);
+    if !raw_price.is_finite() {
+        return Err(SeriesError::Overflow { what: "price" });
+    }
+    // Clamp only rounding below zero (the price of an option is never negative).
+    let price = raw_price.max(0.0);
     let jump_gap = w * (se * s.ja - kd * s.jb);
     let fwd_part = w * se * s.pa;
     let dv_dt = lam * jump_gap - c.rate * price
@@ -355,6 +373,22 @@ pub fn price(c: &Contract) -> Result<SeriesResult, SeriesError> {
         vanna: -dq * sigma * t * s.xa,
         volga: se * t * s.ga + se * sigma * sigma * t * t * s.ya,
     };
+    let all = [
+        greeks.delta,
+        greeks.gamma,
+        greeks.vega,
+        greeks.theta,
+        greeks.rho,
+        greeks.div_rho,
+        greeks.d_jump_rate,
+        greeks.d_jump_mean,
+        greeks.d_jump_vol,
+        greeks.vanna,
+        greeks.volga,
+    ];
+    if !all.iter().all(|x| x.is_finite()) {
+        return Err(SeriesError::Overflow { what: "Greeks" });
+    }
     Ok(SeriesResult {
         greeks,
         terms,

@@ -75,7 +75,8 @@ pub fn run(args: Args) -> Result<ExitCode> {
             out.push_f64(r.truncation_bound);
         }
         out.push_u64(r.terms as u64);
-        if r.greeks.price > 0.0 {
+        // Prices below 1e-250 of spot are only resolved to the absolute floor.
+        if r.greeks.price > 1e-250 * row.contract.spot {
             let rel = r.truncation_bound / r.greeks.price;
             worst_rel_bound.fetch_max(rel.to_bits(), Ordering::Relaxed);
         }
@@ -84,7 +85,9 @@ pub fn run(args: Args) -> Result<ExitCode> {
     if !args.quiet {
         report_rows(&summary, "priced", start.elapsed().as_secs_f64());
         let worst = f64::from_bits(worst_rel_bound.load(Ordering::Relaxed));
-        eprintln!("saltus: largest series truncation bound relative to price: {worst:.1e}");
+        eprintln!(
+            "saltus: largest series truncation bound relative to price: {worst:.1e} (prices above 1e-250 x spot)"
+        );
     }
     Ok(rows_exit_code(&summary))
 }
