@@ -81,3 +81,63 @@ fn expiry_zero_is_intrinsic() {
     );
     assert_eq!(fourier::price(&c).price, 20.0);
 }
+
+#[test]
+fn extreme_jump_books_agree_with_the_series() {
+    // Regression from a randomised sweep: with lambda T |ln(1+k)| in the
+    // thousands the series' moneyness recursion once overflowed and gave NaN
+    // Greeks and a zero price. Two independent engines must now agree.
+    let rows = [
+        (
+            Put,
+            0.1356012124254753,
+            0.04068149384845932,
+            28.610710789818125,
+            0.11522446191211921,
+            0.04799311078153315,
+            0.8031158339761331,
+            28.743615274133017,
+            2.8084219177446537,
+            1.9139961974397341,
+        ),
+        (
+            Put,
+            12.988921087730395,
+            0.16933701183688568,
+            0.019230769230769232,
+            -0.0866662955798706,
+            0.03574564534662243,
+            1.5643141286682956,
+            47048.8876773914,
+            1.9563759764989923,
+            1.9010288590914868,
+        ),
+        (
+            Call,
+            5086.635067764155,
+            168.9531311331469,
+            0.0027397260273972603,
+            0.07148525287703139,
+            0.04611733499003483,
+            0.545011914508323,
+            310995.03033432044,
+            2.791591457401097,
+            1.418870493142516,
+        ),
+    ];
+    for (kind, s, k, t, r, q, v, l, m, d) in rows {
+        let c = merton(kind, s, k, t, r, q, v, l, m, d);
+        let g = series::price(&c).unwrap().greeks;
+        assert!(
+            g.headline().iter().all(|x| x.is_finite()) && g.price > 0.0,
+            "{g:?}"
+        );
+        let f = fourier::price(&c);
+        assert!(
+            (f.price - g.price).abs() <= f.error_estimate + 1e-12 * g.price,
+            "{} vs {}",
+            f.price,
+            g.price
+        );
+    }
+}
