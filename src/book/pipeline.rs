@@ -102,7 +102,7 @@ where
 
     // Chunks in flight (read but not yet written) are bounded, so memory is
     // flat whatever the book size.
-    let max_in_flight = 16 * rayon::current_num_threads().max(1) + 2;
+    let max_in_flight = 4 * rayon::current_num_threads().max(1) + 2;
     let (token_tx, token_rx) = sync_channel::<()>(max_in_flight);
     let (done_tx, done_rx) = std::sync::mpsc::channel::<(u64, ChunkResult)>();
     let (recycle_tx, recycle_rx) = sync_channel::<Vec<(ByteRecord, u64)>>(max_in_flight);
