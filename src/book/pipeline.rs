@@ -222,12 +222,21 @@ where
     let mut errors = Vec::new();
     for (i, (rec, line)) in chunk.records[..chunk.len].iter().enumerate() {
         let row = chunk.first_row + i as u64;
-        // Echo the input fields (padded or cut to the header's width).
+        // Echo the input fields (padded or cut to the header's width). One
+        // scan of the whole record decides whether any field needs quoting.
+        let all = rec.as_slice();
+        let plain = memchr::memchr3(b',', b'"', b'\n', all).is_none()
+            && memchr::memchr(b'\r', all).is_none();
         for j in 0..schema.width {
             if j > 0 {
                 buf.push(b',');
             }
-            write_field(&mut buf, rec.get(j).unwrap_or(b""));
+            let field = rec.get(j).unwrap_or(b"");
+            if plain {
+                buf.extend_from_slice(field);
+            } else {
+                write_field(&mut buf, field);
+            }
         }
         let echo = buf.len();
         let outcome = parse_row(schema, rec, row, *line).and_then(|r| {
