@@ -106,6 +106,10 @@ where
     let (token_tx, token_rx) = sync_channel::<()>(max_in_flight);
     let (done_tx, done_rx) = std::sync::mpsc::channel::<(u64, ChunkResult)>();
     let (recycle_tx, recycle_rx) = sync_channel::<Vec<(ByteRecord, u64)>>(max_in_flight);
+    // Output buffers are recycled too: fresh half-megabyte buffers would be
+    // mapped and page-faulted anew for every chunk.
+    let buffers = std::sync::Mutex::new(Vec::<Vec<u8>>::new());
+    let buffers = &buffers;
 
     std::thread::scope(|scope| -> Result<BookSummary, BookError> {
         // Writer: puts finished chunks back in input order and writes them.
@@ -127,7 +131,13 @@ where
                         }
                     }
                     if io_error.is_none() {
-                        if let Err(e) = out.write_all(&r.buf) {
+                        let written = out.write_all(&r.buf);
+                        let mut spent = r.buf;
+                        spent.clear();
+                        if let Ok(mut pool) = buffers.lock() {
+                            pool.push(spent);
+                        }
+                        if let Err(e) = written {
                             io_error = Some(e);
                         }
                     }
@@ -185,7 +195,8 @@ where
                     let done_tx = done_tx.clone();
                     let recycle_tx = recycle_tx.clone();
                     pool.spawn(move |_| {
-                        let result = process_chunk(&chunk, schema, n_results, process);
+                        let buf = buffers.lock().ok().and_then(|mut p| p.pop()).unwrap_or_default();
+                        let result = process_chunk(&chunk, schema, n_results, process, buf);
                         let _ = done_tx.send((idx, result));
                         let _ = recycle_tx.try_send(chunk.records);
                     });
@@ -213,11 +224,17 @@ struct ChunkResult {
     errors: Vec<String>,
 }
 
-fn process_chunk<F>(chunk: &Chunk, schema: &Schema, n_results: usize, process: &F) -> ChunkResult
+fn process_chunk<F>(
+    chunk: &Chunk,
+    schema: &Schema,
+    n_results: usize,
+    process: &F,
+    mut buf: Vec<u8>,
+) -> ChunkResult
 where
     F: Fn(&BookRow, &mut RowWriter) -> Result<(), String> + Sync,
 {
-    let mut buf = Vec::with_capacity(chunk.len * 320);
+    buf.reserve(chunk.len * 320);
     let mut failed = 0;
     let mut errors = Vec::new();
     for (i, (rec, line)) in chunk.records[..chunk.len].iter().enumerate() {
