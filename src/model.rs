@@ -55,12 +55,12 @@ impl fmt::Display for OptionKind {
 
 impl FromStr for OptionKind {
     type Err = ();
-    /// Accepts `call`/`put` (also `c`/`p`), any case, surrounding spaces ignored.
+    /// Accepts `call` or `put`, any case, surrounding spaces ignored.
     fn from_str(s: &str) -> Result<Self, ()> {
         let t = s.trim();
-        if t.eq_ignore_ascii_case("call") || t.eq_ignore_ascii_case("c") {
+        if t.eq_ignore_ascii_case("call") {
             Ok(OptionKind::Call)
-        } else if t.eq_ignore_ascii_case("put") || t.eq_ignore_ascii_case("p") {
+        } else if t.eq_ignore_ascii_case("put") {
             Ok(OptionKind::Put)
         } else {
             Err(())

@@ -195,7 +195,11 @@ where
                     let done_tx = done_tx.clone();
                     let recycle_tx = recycle_tx.clone();
                     pool.spawn(move |_| {
-                        let buf = buffers.lock().ok().and_then(|mut p| p.pop()).unwrap_or_default();
+                        let buf = buffers
+                            .lock()
+                            .ok()
+                            .and_then(|mut p| p.pop())
+                            .unwrap_or_default();
                         let result = process_chunk(&chunk, schema, n_results, process, buf);
                         let _ = done_tx.send((idx, result));
                         let _ = recycle_tx.try_send(chunk.records);
