@@ -4,17 +4,19 @@
 use super::schema::Schema;
 use crate::model::{Contract, JumpParams, OptionKind};
 use csv::ByteRecord;
+use std::borrow::Cow;
 use std::fmt;
 
-/// One priced position of a book.
+/// One position of a book, borrowing its text fields from the record (no
+/// allocation per row).
 #[derive(Debug, Clone, PartialEq)]
-pub struct BookRow {
+pub struct BookRow<'a> {
     /// 1-based data row number (the header is row 0).
     pub row: u64,
-    /// The `id` column, or the row number when there is none.
-    pub id: String,
-    /// The `underlying` column (empty when absent).
-    pub underlying: String,
+    /// The `id` column, if the book has one.
+    id_field: Option<&'a str>,
+    /// The `underlying` column (empty when absent), spaces trimmed.
+    pub underlying: &'a str,
     /// The validated contract.
     pub contract: Contract,
     /// Signed position size (default 1).
@@ -30,6 +32,16 @@ pub struct RowError {
     pub line: u64,
     /// What is wrong, naming the column.
     pub message: String,
+}
+
+impl<'a> BookRow<'a> {
+    /// The `id` column, or the row number when the book has none.
+    pub fn id(&self) -> Cow<'a, str> {
+        match self.id_field {
+            Some(s) => Cow::Borrowed(s),
+            None => Cow::Owned(self.row.to_string()),
+        }
+    }
 }
 
 impl fmt::Display for RowError {
@@ -79,12 +91,12 @@ fn optional_number(
 /// [`RowError`] with the record's line and the first problem found: a wrong
 /// number of fields, a missing or non-numeric value, an unknown kind, or a
 /// value the model refuses (negative vol, NaN, ...).
-pub fn parse_row(
+pub fn parse_row<'a>(
     schema: &Schema,
-    rec: &ByteRecord,
+    rec: &'a ByteRecord,
     row: u64,
     line: u64,
-) -> Result<BookRow, RowError> {
+) -> Result<BookRow<'a>, RowError> {
     let err = |message: String| RowError { line, message };
     if rec.len() != schema.width {
         return Err(err(format!(
@@ -125,21 +137,17 @@ pub fn parse_row(
         },
     )
     .map_err(|e| err(e.to_string()))?;
-    let id = match schema.id {
-        Some(i) => text(&rec[i])
-            .map_err(|e| err(format!("id {e}")))?
-            .to_string(),
-        None => row.to_string(),
+    let id_field = match schema.id {
+        Some(i) => Some(text(&rec[i]).map_err(|e| err(format!("id {e}")))?),
+        None => None,
     };
     let underlying = match schema.underlying {
-        Some(i) => text(&rec[i])
-            .map_err(|e| err(format!("underlying {e}")))?
-            .to_string(),
-        None => String::new(),
+        Some(i) => text(&rec[i]).map_err(|e| err(format!("underlying {e}")))?,
+        None => "",
     };
     Ok(BookRow {
         row,
-        id,
+        id_field,
         underlying,
         contract,
         quantity,
@@ -213,13 +221,8 @@ mod tests {
 
     #[test]
     fn id_defaults_to_row_number() {
-        let r = parse_row(
-            &schema(),
-            &rec(&["Call", "100", "90", "1", "0", "0.2", "0", "0", "0"]),
-            7,
-            8,
-        )
-        .unwrap();
-        assert_eq!((r.id.as_str(), r.quantity), ("7", 1.0));
+        let record = rec(&["Call", "100", "90", "1", "0", "0.2", "0", "0", "0"]);
+        let r = parse_row(&schema(), &record, 7, 8).unwrap();
+        assert_eq!((r.id().as_ref(), r.quantity), ("7", 1.0));
     }
 }

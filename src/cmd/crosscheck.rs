@@ -177,7 +177,7 @@ pub fn run(args: Args) -> Result<ExitCode> {
     let input = open_input(&args.book)?;
     let output = open_output(args.output.as_deref())?;
     let summary = run_book(input, output, &opts, |row, out| {
-        let key = stream_key(cfg.mc.seed, &row.id);
+        let key = stream_key(cfg.mc.seed, &row.id());
         let r = check(&row.contract, key, &cfg).map_err(|e| e.to_string())?;
         out.push_f64(r.price_series);
         out.push_f64(r.fourier.price);
@@ -196,7 +196,7 @@ pub fn run(args: Args) -> Result<ExitCode> {
         };
         records.lock().expect("records lock").push(SummaryRecord {
             row: row.row,
-            id: row.id.clone(),
+            id: row.id().into_owned(),
             outcome: r.outcome,
             z: r.mc_z,
             fourier_rel_gap: rel,

@@ -186,7 +186,7 @@ pub fn run(args: Args) -> Result<ExitCode> {
                 EngineChoice::Series => &SeriesEngine,
                 EngineChoice::Fourier => &FourierEngine,
                 EngineChoice::Mc => {
-                    mc = finite_diff::crn_monte_carlo(c, stream_key(args.seed, &row.id), &mc_cfg);
+                    mc = finite_diff::crn_monte_carlo(c, stream_key(args.seed, &row.id()), &mc_cfg);
                     &mc
                 }
             };

@@ -119,8 +119,8 @@ pub fn run(args: Args) -> Result<ExitCode> {
         w.push_f64(row.quantity * row.multiplier * g.price);
         positions.lock().expect("positions lock").push(Position {
             row: row.row,
-            id: row.id.clone(),
-            underlying: row.underlying.clone(),
+            id: row.id().into_owned(),
+            underlying: row.underlying.to_string(),
             contract: row.contract,
             quantity: row.quantity,
             multiplier: row.multiplier,
