@@ -78,7 +78,7 @@ impl Integrand {
     #[inline]
     fn jump_part(&self, u: f64) -> Complex64 {
         let g = self.jump_log_amp - self.jump_damp * u * u;
-        let em1 = libm::expm1(g);
+        let em1 = g.exp_m1();
         let angle = u * self.jump_freq;
         let (sin, cos) = angle.sin_cos();
         let half = (0.5 * angle).sin();

@@ -131,7 +131,7 @@ impl JumpParams {
     /// computed with `expm1` so tiny jumps keep their digits.
     #[inline]
     pub fn k(&self) -> f64 {
-        libm::expm1(self.log_mean_jump())
+        self.log_mean_jump().exp_m1()
     }
 
     /// `ln(1 + k) = mu_J + delta^2 / 2`.

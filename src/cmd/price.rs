@@ -78,7 +78,11 @@ pub fn run(args: Args) -> Result<ExitCode> {
         // Prices below 1e-250 of spot are only resolved to the absolute floor.
         if r.greeks.price > 1e-250 * row.contract.spot {
             let rel = r.truncation_bound / r.greeks.price;
-            worst_rel_bound.fetch_max(rel.to_bits(), Ordering::Relaxed);
+            // Read first: a read-modify-write on every row would bounce the
+            // cache line between the workers.
+            if rel.to_bits() > worst_rel_bound.load(Ordering::Relaxed) {
+                worst_rel_bound.fetch_max(rel.to_bits(), Ordering::Relaxed);
+            }
         }
         Ok(())
     })?;
