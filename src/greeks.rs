@@ -68,7 +68,40 @@ pub const DESK_COLUMNS: [&str; 10] = [
     "d_jump_vol_1pct",
 ];
 
+/// The eleven sensitivities (everything but the price), in the order of
+/// [`Greeks::sensitivities`]: the columns of `saltus greeks`.
+pub const SENSITIVITY_NAMES: [&str; 11] = [
+    "delta",
+    "gamma",
+    "vega",
+    "theta",
+    "rho",
+    "div_rho",
+    "d_jump_rate",
+    "d_jump_mean",
+    "d_jump_vol",
+    "vanna",
+    "volga",
+];
+
 impl Greeks {
+    /// The eleven sensitivities in [`SENSITIVITY_NAMES`] order.
+    pub fn sensitivities(&self) -> [f64; 11] {
+        [
+            self.delta,
+            self.gamma,
+            self.vega,
+            self.theta,
+            self.rho,
+            self.div_rho,
+            self.d_jump_rate,
+            self.d_jump_mean,
+            self.d_jump_vol,
+            self.vanna,
+            self.volga,
+        ]
+    }
+
     /// The ten headline values in [`RAW_COLUMNS`] order.
     pub fn headline(&self) -> [f64; 10] {
         [

@@ -373,20 +373,7 @@ pub fn price(c: &Contract) -> Result<SeriesResult, SeriesError> {
         vanna: -dq * sigma * t * s.xa,
         volga: se * t * s.ga + se * sigma * sigma * t * t * s.ya,
     };
-    let all = [
-        greeks.delta,
-        greeks.gamma,
-        greeks.vega,
-        greeks.theta,
-        greeks.rho,
-        greeks.div_rho,
-        greeks.d_jump_rate,
-        greeks.d_jump_mean,
-        greeks.d_jump_vol,
-        greeks.vanna,
-        greeks.volga,
-    ];
-    if !all.iter().all(|x| x.is_finite()) {
+    if !greeks.sensitivities().iter().all(|x| x.is_finite()) {
         return Err(SeriesError::Overflow { what: "Greeks" });
     }
     Ok(SeriesResult {

@@ -5,7 +5,7 @@ use crate::common::merton;
 use saltus::black_scholes;
 use saltus::engine::{FourierEngine, SeriesEngine};
 use saltus::finite_diff::{self, FdConfig};
-use saltus::greeks::Greeks;
+use saltus::greeks::{Greeks, SENSITIVITY_NAMES};
 use saltus::model::{
     Contract,
     OptionKind::{Call, Put},
@@ -14,19 +14,8 @@ use saltus::monte_carlo::{stream_key, McConfig, Work};
 use saltus::series;
 
 fn fields(g: &Greeks) -> [(&'static str, f64); 11] {
-    [
-        ("delta", g.delta),
-        ("gamma", g.gamma),
-        ("vega", g.vega),
-        ("theta", g.theta),
-        ("rho", g.rho),
-        ("div_rho", g.div_rho),
-        ("d_jump_rate", g.d_jump_rate),
-        ("d_jump_mean", g.d_jump_mean),
-        ("d_jump_vol", g.d_jump_vol),
-        ("vanna", g.vanna),
-        ("volga", g.volga),
-    ]
+    let v = g.sensitivities();
+    std::array::from_fn(|i| (SENSITIVITY_NAMES[i], v[i]))
 }
 
 /// The documented tolerance of `saltus greeks --method both`: a relative

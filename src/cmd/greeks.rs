@@ -7,44 +7,13 @@ use anyhow::{bail, Result};
 use saltus::book::{run_book, PipelineOptions};
 use saltus::engine::{FourierEngine, PricingEngine, SeriesEngine};
 use saltus::finite_diff::{self, FdConfig};
-use saltus::greeks::Greeks;
+use saltus::greeks::SENSITIVITY_NAMES;
 use saltus::monte_carlo::{stream_key, McConfig, Work};
 use saltus::series;
 use std::path::PathBuf;
 use std::process::ExitCode;
 use std::sync::atomic::{AtomicU64, Ordering};
 use std::time::Instant;
-
-/// The Greeks this command reports, in order.
-pub const GREEKS: [&str; 11] = [
-    "delta",
-    "gamma",
-    "vega",
-    "theta",
-    "rho",
-    "div_rho",
-    "d_jump_rate",
-    "d_jump_mean",
-    "d_jump_vol",
-    "vanna",
-    "volga",
-];
-
-fn values(g: &Greeks) -> [f64; 11] {
-    [
-        g.delta,
-        g.gamma,
-        g.vega,
-        g.theta,
-        g.rho,
-        g.div_rho,
-        g.d_jump_rate,
-        g.d_jump_mean,
-        g.d_jump_vol,
-        g.vanna,
-        g.volga,
-    ]
-}
 
 /// Which engine the finite differences reprice with.
 #[derive(Clone, Copy, PartialEq, Eq, clap::ValueEnum)]
@@ -154,10 +123,10 @@ pub fn run(args: Args) -> Result<ExitCode> {
     match args.method {
         Method::Analytic | Method::Fd => {
             columns.push("price".into());
-            columns.extend(GREEKS.iter().map(|g| g.to_string()));
+            columns.extend(SENSITIVITY_NAMES.iter().map(|g| g.to_string()));
         }
         Method::Both => {
-            for g in GREEKS {
+            for g in SENSITIVITY_NAMES {
                 for suffix in ["analytic", "fd", "abs_diff", "rel_diff", "flag"] {
                     columns.push(format!("{g}_{suffix}"));
                 }
@@ -206,14 +175,14 @@ pub fn run(args: Args) -> Result<ExitCode> {
             Method::Analytic => {
                 let g = series::price(c).map_err(|e| e.to_string())?.greeks;
                 out.push_f64(g.price);
-                for v in values(&g) {
+                for v in g.sensitivities() {
                     out.push_f64(v);
                 }
             }
             Method::Fd => {
                 let g = fd(())?.greeks;
                 out.push_f64(g.price);
-                for v in values(&g) {
+                for v in g.sensitivities() {
                     out.push_f64(v);
                 }
             }
@@ -221,14 +190,15 @@ pub fn run(args: Args) -> Result<ExitCode> {
                 let a = series::price(c).map_err(|e| e.to_string())?.greeks;
                 let f = fd(())?;
                 let mut flagged = Vec::new();
-                for (i, ((ga, gf), noise)) in values(&a)
+                for (i, ((ga, gf), noise)) in a
+                    .sensitivities()
                     .into_iter()
-                    .zip(values(&f.greeks))
-                    .zip(values(&f.noise))
+                    .zip(f.greeks.sensitivities())
+                    .zip(f.noise.sensitivities())
                     .enumerate()
                 {
                     let diff = gf - ga;
-                    let tol = rel_tol * ga.abs() + floor(GREEKS[i], c.spot) + noise;
+                    let tol = rel_tol * ga.abs() + floor(SENSITIVITY_NAMES[i], c.spot) + noise;
                     let bad = diff.is_nan() || diff.abs() > tol;
                     out.push_f64(ga);
                     out.push_f64(gf);
@@ -240,7 +210,7 @@ pub fn run(args: Args) -> Result<ExitCode> {
                     }
                     out.push_str(if bad { "DIFF" } else { "ok" });
                     if bad {
-                        flagged.push(GREEKS[i]);
+                        flagged.push(SENSITIVITY_NAMES[i]);
                     }
                 }
                 out.push_f64(a.price);
