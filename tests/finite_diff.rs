@@ -84,7 +84,8 @@ fn fourier_finite_differences_match_at_1e_5() {
 
 #[test]
 fn without_jumps_they_are_the_textbook_black_scholes_greeks() {
-    // Closed-form Black-Scholes Greeks (Hull, ch. 19; Haug, ch. 2).
+    // Closed-form Black-Scholes Greeks (Hull, Options, Futures and Other Derivatives,
+    // chapter on the Greek letters; chapter number not given, from memory).
     let cfg = FdConfig::for_engine(&SeriesEngine);
     for kind in [Call, Put] {
         for &k in &[80.0, 100.0, 125.0] {

@@ -32,7 +32,8 @@ fn price(kind: OptionKind, p: &[f64; 9]) -> saltus::greeks::Greeks {
 
 #[test]
 fn put_call_parity_across_a_sweep() {
-    // C - P = S e^{-qT} - K e^{-rT} (model-free; Hull, ch. 11).
+    // C - P = S e^{-qT} - K e^{-rT}: model-free put-call parity (Hull, Options,
+    // Futures and Other Derivatives; from memory).
     for p in sweep() {
         let c = price(Call, &p);
         let put = price(Put, &p);
