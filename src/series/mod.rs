@@ -26,6 +26,9 @@ use crate::greeks::Greeks;
 use crate::model::{Contract, OptionKind};
 use crate::normal::{norm_cdf_from_pdf, norm_pdf, FRAC_1_SQRT_2PI};
 use crate::poisson::pmf;
+use lanes::{Block, LaneSums, LANES};
+
+mod lanes;
 
 /// Stop when the bound on omitted terms is below this fraction of the price.
 pub const SERIES_REL_TOL: f64 = 1.0e-14;
@@ -296,15 +299,71 @@ pub fn price(c: &Contract) -> Result<SeriesResult, SeriesError> {
             fk: wt.fk * inv_onek,
         }
     };
+    // Terms go in blocks of LANES consecutive indices (see `lanes`): upward
+    // from the mode, and downward from just below it.
+    let wide = lanes::wide_lanes_available();
+    let up_block = |f: &Weights| {
+        let mut blk = Block {
+            n: [0.0; LANES],
+            a: [0.0; LANES],
+            b: [0.0; LANES],
+            a_prev: [0.0; LANES],
+            b_prev: [0.0; LANES],
+            fk: [1.0; LANES],
+            live: [true; LANES],
+        };
+        let mut cur = *f;
+        for j in 0..LANES {
+            if j > 0 {
+                cur = step_up(&cur);
+            }
+            blk.set(j, &cur);
+        }
+        (blk, step_up(&cur))
+    };
+    let down_block = |f: &Weights| {
+        let mut blk = Block {
+            n: [0.0; LANES],
+            a: [0.0; LANES],
+            b: [0.0; LANES],
+            a_prev: [0.0; LANES],
+            b_prev: [0.0; LANES],
+            fk: [1.0; LANES],
+            live: [false; LANES],
+        };
+        let mut cur = *f;
+        let mut next = None;
+        for j in (0..LANES).rev() {
+            blk.set(j, &cur);
+            if cur.n == 0 {
+                break;
+            }
+            cur = step_down(&cur);
+            if j == 0 {
+                next = Some(cur);
+            }
+        }
+        (blk, next)
+    };
     let mut sums = Sums::default();
-    setup.add_term(&mut sums, &up);
-    let mut terms = 1usize;
+    let mut acc = LaneSums::default();
+    let eval = |sums: &mut Sums, acc: &mut LaneSums, blk: &Block| {
+        if !lanes::add_block(&setup, blk, acc, wide) {
+            for j in (0..LANES).filter(|&j| blk.live[j]) {
+                setup.add_term(sums, &blk.lane(j));
+            }
+        }
+        blk.live_count()
+    };
     let mut down = if n0 > 0 { Some(step_down(&up)) } else { None };
-    up = step_up(&up);
+    let (first, next_up) = up_block(&up);
+    let mut terms = eval(&mut sums, &mut acc, &first);
+    up = next_up;
     // Tail bounds as fractions num/den (see `crate::poisson`), compared by
     // cross-multiplication so the loop needs no division:
     // upper = p_m (m+1) / (m+1-mu), lower = p_m mu / (mu-m); den <= 0 means
-    // the geometric bound does not hold yet (infinite).
+    // the geometric bound does not hold yet (infinite). `up` and `down` are
+    // the first indices not yet summed on each side.
     let bound = loop {
         let up_den = (up.n + 1) as f64 - mu_w;
         let up_num = bounding(&up) * (up.n + 1) as f64;
@@ -312,7 +371,8 @@ pub fn price(c: &Contract) -> Result<SeriesResult, SeriesError> {
             Some(d) => (bounding(d) * mu_w, mu_w - d.n as f64),
             None => (0.0, 1.0),
         };
-        let partial = w * (se * sums.pa - kd * sums.pb);
+        let (lane_pa, lane_pb) = acc.price_parts();
+        let partial = w * (se * (sums.pa + lane_pa) - kd * (sums.pb + lane_pb));
         let tol = (SERIES_REL_TOL * partial).max(SERIES_ABS_TOL * scale);
         if up_den > 0.0
             && lo_den > 0.0
@@ -328,16 +388,18 @@ pub fn price(c: &Contract) -> Result<SeriesResult, SeriesError> {
         let lower_larger = lo_den <= 0.0 || (up_den > 0.0 && lo_num * up_den >= up_num * lo_den);
         match down {
             Some(d) if lower_larger => {
-                setup.add_term(&mut sums, &d);
-                down = if d.n > 0 { Some(step_down(&d)) } else { None };
+                let (blk, next) = down_block(&d);
+                terms += eval(&mut sums, &mut acc, &blk);
+                down = next;
             }
             _ => {
-                setup.add_term(&mut sums, &up);
-                up = step_up(&up);
+                let (blk, next) = up_block(&up);
+                terms += eval(&mut sums, &mut acc, &blk);
+                up = next;
             }
         }
-        terms += 1;
     };
+    acc.add_into(&mut sums);
     // One more upward term: the shifted weights a_{n-1}, b_{n-1} of the jump-rate
     // and theta sums reach one index further (at lambda = 0 only this term
     // carries d/dlambda).
