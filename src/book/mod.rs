@@ -7,9 +7,9 @@
 //! which is `status`. A row that cannot be processed keeps its place, gets
 //! empty result fields and a status naming the line, column and problem.
 
-pub mod lines;
 pub mod pipeline;
 pub mod reader;
+pub mod records;
 pub mod schema;
 pub mod writer;
 

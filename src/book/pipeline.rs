@@ -7,8 +7,8 @@
 //! whatever the size of the book. Chunking never changes a result: rows are
 //! processed independently.
 
-use super::lines::LineCounter;
 use super::reader::{parse_row, BookRow, RowError};
+use super::records::{Record, RecordReader};
 use super::schema::{Schema, SchemaError};
 use super::writer::{write_field, RowWriter};
 use csv::ByteRecord;
@@ -59,7 +59,7 @@ pub struct PipelineOptions {
 struct Chunk {
     first_row: u64,
     len: usize,
-    records: Vec<(ByteRecord, u64)>,
+    records: Vec<(Record, u64)>,
 }
 
 /// Runs a book through `process`.
@@ -83,12 +83,10 @@ where
     W: Write + Send,
     F: Fn(&BookRow, &mut RowWriter) -> Result<(), String> + Sync,
 {
-    let (counted, lines) = LineCounter::new(input);
-    let mut reader = csv::ReaderBuilder::new()
-        .has_headers(true)
-        .flexible(true)
-        .from_reader(counted);
-    let headers = reader.byte_headers()?.clone();
+    let mut reader = RecordReader::new(input);
+    let mut header_record = Record::default();
+    reader.read_record(&mut header_record)?;
+    let headers: ByteRecord = header_record.iter().collect();
     let schema = Schema::from_headers(&headers)?;
     let n_results = opts.result_columns.len();
 
@@ -105,7 +103,7 @@ where
     let max_in_flight = 4 * rayon::current_num_threads().max(1) + 2;
     let (token_tx, token_rx) = sync_channel::<()>(max_in_flight);
     let (done_tx, done_rx) = std::sync::mpsc::channel::<(u64, ChunkResult)>();
-    let (recycle_tx, recycle_rx) = sync_channel::<Vec<(ByteRecord, u64)>>(max_in_flight);
+    let (recycle_tx, recycle_rx) = sync_channel::<Vec<(Record, u64)>>(max_in_flight);
     // Output buffers are recycled too: fresh half-megabyte buffers would be
     // mapped and page-faulted anew for every chunk.
     let buffers = std::sync::Mutex::new(Vec::<Vec<u8>>::new());
@@ -166,16 +164,16 @@ where
                 let mut len = 0;
                 while len < CHUNK_ROWS {
                     if records.len() == len {
-                        records.push((ByteRecord::new(), 0));
+                        records.push((Record::default(), 0));
                     }
                     let (rec, line) = &mut records[len];
-                    match reader.read_byte_record(rec) {
-                        Ok(true) => {
+                    match reader.read_record(rec) {
+                        Ok(Some(l)) => {
                             row += 1;
-                            *line = rec.position().map(|p| lines.line_of(p.byte())).unwrap_or(0);
+                            *line = l;
                             len += 1;
                         }
-                        Ok(false) => break,
+                        Ok(None) => break,
                         Err(e) => {
                             input_error = Some(e);
                             break;
@@ -243,20 +241,17 @@ where
     let mut errors = Vec::new();
     for (i, (rec, line)) in chunk.records[..chunk.len].iter().enumerate() {
         let row = chunk.first_row + i as u64;
-        // Echo the input fields (padded or cut to the header's width). One
-        // scan of the whole record decides whether any field needs quoting.
-        let all = rec.as_slice();
-        let plain = memchr::memchr3(b',', b'"', b'\n', all).is_none()
-            && memchr::memchr(b'\r', all).is_none();
-        for j in 0..schema.width {
-            if j > 0 {
-                buf.push(b',');
-            }
-            let field = rec.get(j).unwrap_or(b"");
-            if plain {
-                buf.extend_from_slice(field);
-            } else {
-                write_field(&mut buf, field);
+        // Echo the input fields (padded or cut to the header's width): a
+        // plain record of the right width is its raw line.
+        match rec.plain_line() {
+            Some(raw) if rec.len() == schema.width => buf.extend_from_slice(raw),
+            _ => {
+                for j in 0..schema.width {
+                    if j > 0 {
+                        buf.push(b',');
+                    }
+                    write_field(&mut buf, rec.get(j).unwrap_or(b""));
+                }
             }
         }
         let echo = buf.len();

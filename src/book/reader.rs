@@ -1,9 +1,9 @@
 //! Turning one CSV record into a validated position, or an error that names
 //! the line, the column and the problem.
 
+use super::records::Record;
 use super::schema::Schema;
 use crate::model::{Contract, JumpParams, OptionKind};
-use csv::ByteRecord;
 use std::borrow::Cow;
 use std::fmt;
 
@@ -56,18 +56,64 @@ fn text(field: &[u8]) -> Result<&str, String> {
         .map_err(|_| "is not valid UTF-8".to_string())
 }
 
-fn number(rec: &ByteRecord, idx: usize, name: &str) -> Result<f64, String> {
+fn number(rec: &Record, idx: usize, name: &str) -> Result<f64, String> {
     let raw = rec.get(idx).unwrap_or(b"").trim_ascii();
     if raw.is_empty() {
         return Err(format!("{name} is missing"));
     }
-    // Parsed from bytes (fast-float2: correctly rounded, like `str::parse`).
+    if let Some(v) = plain_decimal(raw) {
+        return Ok(v);
+    }
+    // Everything else (exponents, long mantissas, inf, nan, junk) goes to
+    // fast-float2: correctly rounded, like `str::parse`.
     fast_float2::parse::<f64, _>(raw)
         .map_err(|_| format!("{name} is not a number: '{}'", String::from_utf8_lossy(raw)))
 }
 
+/// Exact powers of ten representable in a double.
+const POW10: [f64; 23] = [
+    1e0, 1e1, 1e2, 1e3, 1e4, 1e5, 1e6, 1e7, 1e8, 1e9, 1e10, 1e11, 1e12, 1e13, 1e14, 1e15, 1e16,
+    1e17, 1e18, 1e19, 1e20, 1e21, 1e22,
+];
+
+/// The common form of book numbers, `[-]digits[.digits]`, when its value is
+/// `m / 10^f` with `m < 2^53` and `f <= 22`: both are exact doubles, so the
+/// one division is correctly rounded (Clinger's fast path) and the result is
+/// the same double `str::parse` gives. `None` for any other text.
+#[inline]
+fn plain_decimal(s: &[u8]) -> Option<f64> {
+    let (negative, digits) = match s.split_first() {
+        Some((b'-', rest)) => (true, rest),
+        _ => (false, s),
+    };
+    // At most 19 characters: m cannot overflow a u64.
+    if digits.is_empty() || digits.len() > 19 {
+        return None;
+    }
+    let mut m: u64 = 0;
+    let mut frac_digits = 0usize;
+    let mut seen_point = false;
+    for (i, &c) in digits.iter().enumerate() {
+        match c {
+            b'0'..=b'9' => {
+                m = m * 10 + u64::from(c - b'0');
+                frac_digits += usize::from(seen_point);
+            }
+            // A point needs digits on both sides ("1." and ".5" go to the
+            // general parser).
+            b'.' if !seen_point && i > 0 && i + 1 < digits.len() => seen_point = true,
+            _ => return None,
+        }
+    }
+    if m > 1 << 53 {
+        return None;
+    }
+    let v = m as f64 / POW10[frac_digits];
+    Some(if negative { -v } else { v })
+}
+
 fn optional_number(
-    rec: &ByteRecord,
+    rec: &Record,
     idx: Option<usize>,
     name: &str,
     default: f64,
@@ -93,7 +139,7 @@ fn optional_number(
 /// value the model refuses (negative vol, NaN, ...).
 pub fn parse_row<'a>(
     schema: &Schema,
-    rec: &'a ByteRecord,
+    rec: &'a Record,
     row: u64,
     line: u64,
 ) -> Result<BookRow<'a>, RowError> {
@@ -159,8 +205,80 @@ pub fn parse_row<'a>(
 mod tests {
     use super::*;
 
+    #[test]
+    fn plain_decimals_parse_like_std() {
+        // Reference: Rust's `str::parse::<f64>` (correctly rounded).
+        let mut seed = 0x9e37_79b9_7f4a_7c15u64;
+        let mut next = |k: u64| {
+            seed ^= seed << 13;
+            seed ^= seed >> 7;
+            seed ^= seed << 17;
+            seed % k
+        };
+        let mut fast = 0;
+        for _ in 0..200_000 {
+            let int_len = 1 + next(9) as usize;
+            let frac_len = next(10) as usize;
+            let mut t = String::new();
+            if next(3) == 0 {
+                t.push('-');
+            }
+            for _ in 0..int_len {
+                t.push(char::from(b'0' + next(10) as u8));
+            }
+            if frac_len > 0 {
+                t.push('.');
+                for _ in 0..frac_len {
+                    t.push(char::from(b'0' + next(10) as u8));
+                }
+            }
+            let want: f64 = t.parse().unwrap();
+            if let Some(got) = plain_decimal(t.as_bytes()) {
+                assert_eq!(got.to_bits(), want.to_bits(), "{t}");
+                fast += 1;
+            }
+        }
+        assert!(fast > 150_000, "fast path taken {fast} times");
+        for t in [
+            "0",
+            "-0",
+            "0.0",
+            "1.5",
+            "-0.064",
+            "999999999999999",
+            "0.000000000000001",
+        ] {
+            let want: f64 = t.parse().unwrap();
+            assert_eq!(
+                plain_decimal(t.as_bytes()).map(f64::to_bits),
+                Some(want.to_bits()),
+                "{t}"
+            );
+        }
+        for t in [
+            "",
+            "-",
+            ".",
+            "1.",
+            ".5",
+            "1e5",
+            "1.2.3",
+            "+1",
+            "--1",
+            "1-",
+            "nan",
+            "inf",
+            "1 2",
+            "0x1",
+            "9007199254740993",
+            "12345678901234567890",
+        ] {
+            assert_eq!(plain_decimal(t.as_bytes()), None, "{t}");
+        }
+    }
+
     fn schema() -> Schema {
-        Schema::from_headers(&ByteRecord::from(vec![
+        Schema::from_headers(&csv::ByteRecord::from(vec![
             "kind",
             "spot",
             "strike",
@@ -174,8 +292,8 @@ mod tests {
         .unwrap()
     }
 
-    fn rec(f: &[&str]) -> ByteRecord {
-        ByteRecord::from(f.to_vec())
+    fn rec(f: &[&str]) -> Record {
+        Record::from_fields(f)
     }
 
     #[test]
