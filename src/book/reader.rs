@@ -56,16 +56,25 @@ fn text(field: &[u8]) -> Result<&str, String> {
         .map_err(|_| "is not valid UTF-8".to_string())
 }
 
+#[inline]
 fn number(rec: &Record, idx: usize, name: &str) -> Result<f64, String> {
-    let raw = rec.get(idx).unwrap_or(b"").trim_ascii();
+    let raw = rec.get(idx).unwrap_or(b"");
+    match plain_decimal(raw) {
+        Some(v) => Ok(v),
+        None => general_number(raw, name),
+    }
+}
+
+/// Everything but the plain form: surrounding spaces, exponents, long
+/// mantissas, `inf`, `nan`, junk. fast-float2 is correctly rounded, like
+/// `str::parse`.
+#[cold]
+#[inline(never)]
+fn general_number(raw: &[u8], name: &str) -> Result<f64, String> {
+    let raw = raw.trim_ascii();
     if raw.is_empty() {
         return Err(format!("{name} is missing"));
     }
-    if let Some(v) = plain_decimal(raw) {
-        return Ok(v);
-    }
-    // Everything else (exponents, long mantissas, inf, nan, junk) goes to
-    // fast-float2: correctly rounded, like `str::parse`.
     fast_float2::parse::<f64, _>(raw)
         .map_err(|_| format!("{name} is not a number: '{}'", String::from_utf8_lossy(raw)))
 }
@@ -91,20 +100,26 @@ fn plain_decimal(s: &[u8]) -> Option<f64> {
         return None;
     }
     let mut m: u64 = 0;
-    let mut frac_digits = 0usize;
-    let mut seen_point = false;
+    let mut point = usize::MAX;
     for (i, &c) in digits.iter().enumerate() {
-        match c {
-            b'0'..=b'9' => {
-                m = m * 10 + u64::from(c - b'0');
-                frac_digits += usize::from(seen_point);
-            }
-            // A point needs digits on both sides ("1." and ".5" go to the
-            // general parser).
-            b'.' if !seen_point && i > 0 && i + 1 < digits.len() => seen_point = true,
-            _ => return None,
+        let d = c.wrapping_sub(b'0');
+        if d < 10 {
+            m = m * 10 + u64::from(d);
+        } else if c == b'.' && point == usize::MAX {
+            point = i;
+        } else {
+            return None;
         }
     }
+    // A point needs digits on both sides ("1." and ".5" go to the general
+    // parser).
+    let frac_digits = if point == usize::MAX {
+        0
+    } else if point == 0 || point + 1 == digits.len() {
+        return None;
+    } else {
+        digits.len() - point - 1
+    };
     if m > 1 << 53 {
         return None;
     }

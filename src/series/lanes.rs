@@ -35,6 +35,21 @@ pub(super) struct Block {
     pub(super) live: [bool; LANES],
 }
 
+impl Default for Block {
+    /// All lanes dead, zero weights, unit moneyness.
+    fn default() -> Self {
+        Block {
+            n: [0.0; LANES],
+            a: [0.0; LANES],
+            b: [0.0; LANES],
+            a_prev: [0.0; LANES],
+            b_prev: [0.0; LANES],
+            fk: [1.0; LANES],
+            live: [false; LANES],
+        }
+    }
+}
+
 impl Block {
     /// The weights of lane `j` in the scalar form.
     pub(super) fn lane(&self, j: usize) -> Weights {

@@ -267,17 +267,6 @@ pub fn price(c: &Contract) -> Result<SeriesResult, SeriesError> {
         fk: fk0,
     };
     let inv_onek = 1.0 / onek;
-    let step_up = |wt: &Weights| {
-        let r = 1.0 / (wt.n + 1) as f64;
-        Weights {
-            n: wt.n + 1,
-            a: wt.a * mu_a * r,
-            b: wt.b * mu_b * r,
-            a_prev: wt.a,
-            b_prev: wt.b,
-            fk: wt.fk * onek,
-        }
-    };
     // Only used when n0 > 0, hence mu_a, mu_b >= 1.
     let (inv_mu_a, inv_mu_b) = (1.0 / mu_a, 1.0 / mu_b);
     let step_down = |wt: &Weights| {
@@ -302,48 +291,49 @@ pub fn price(c: &Contract) -> Result<SeriesResult, SeriesError> {
     // Terms go in blocks of LANES consecutive indices (see `lanes`): upward
     // from the mode, and downward from just below it.
     let wide = lanes::wide_lanes_available();
-    let up_block = |f: &Weights| {
-        let mut blk = Block {
-            n: [0.0; LANES],
-            a: [0.0; LANES],
-            b: [0.0; LANES],
-            a_prev: [0.0; LANES],
-            b_prev: [0.0; LANES],
-            fk: [1.0; LANES],
-            live: [true; LANES],
-        };
-        let mut cur = *f;
+    // Fill `blk` with the LANES indices from the frontier `f` upward and
+    // move `f` past them (same arithmetic as `step_up`).
+    let up_block = |blk: &mut Block, f: &mut Weights| {
+        let n0 = f.n as f64;
+        let (mut a, mut b, mut fk) = (f.a, f.b, f.fk);
+        let (mut a_prev, mut b_prev) = (f.a_prev, f.b_prev);
         for j in 0..LANES {
-            if j > 0 {
-                cur = step_up(&cur);
-            }
-            blk.set(j, &cur);
+            let n = n0 + j as f64;
+            blk.n[j] = n;
+            blk.a[j] = a;
+            blk.b[j] = b;
+            blk.a_prev[j] = a_prev;
+            blk.b_prev[j] = b_prev;
+            blk.fk[j] = fk;
+            blk.live[j] = true;
+            let r = 1.0 / (n + 1.0);
+            (a_prev, b_prev) = (a, b);
+            a = a * mu_a * r;
+            b = b * mu_b * r;
+            fk *= onek;
         }
-        (blk, step_up(&cur))
-    };
-    let down_block = |f: &Weights| {
-        let mut blk = Block {
-            n: [0.0; LANES],
-            a: [0.0; LANES],
-            b: [0.0; LANES],
-            a_prev: [0.0; LANES],
-            b_prev: [0.0; LANES],
-            fk: [1.0; LANES],
-            live: [false; LANES],
+        *f = Weights {
+            n: f.n + LANES as u64,
+            a,
+            b,
+            a_prev,
+            b_prev,
+            fk,
         };
+    };
+    // Fill `blk` with the LANES indices from the frontier `f` downward
+    // (lanes below index 0 are dead) and return the next frontier, if any.
+    let down_block = |blk: &mut Block, f: &Weights| {
+        *blk = Block::default();
         let mut cur = *f;
-        let mut next = None;
         for j in (0..LANES).rev() {
             blk.set(j, &cur);
             if cur.n == 0 {
-                break;
+                return None;
             }
             cur = step_down(&cur);
-            if j == 0 {
-                next = Some(cur);
-            }
         }
-        (blk, next)
+        Some(cur)
     };
     let mut sums = Sums::default();
     let mut acc = LaneSums::default();
@@ -356,9 +346,9 @@ pub fn price(c: &Contract) -> Result<SeriesResult, SeriesError> {
         blk.live_count()
     };
     let mut down = if n0 > 0 { Some(step_down(&up)) } else { None };
-    let (first, next_up) = up_block(&up);
-    let mut terms = eval(&mut sums, &mut acc, &first);
-    up = next_up;
+    let mut blk = Block::default();
+    up_block(&mut blk, &mut up);
+    let mut terms = eval(&mut sums, &mut acc, &blk);
     // Tail bounds as fractions num/den (see `crate::poisson`), compared by
     // cross-multiplication so the loop needs no division:
     // upper = p_m (m+1) / (m+1-mu), lower = p_m mu / (mu-m); den <= 0 means
@@ -388,14 +378,12 @@ pub fn price(c: &Contract) -> Result<SeriesResult, SeriesError> {
         let lower_larger = lo_den <= 0.0 || (up_den > 0.0 && lo_num * up_den >= up_num * lo_den);
         match down {
             Some(d) if lower_larger => {
-                let (blk, next) = down_block(&d);
+                down = down_block(&mut blk, &d);
                 terms += eval(&mut sums, &mut acc, &blk);
-                down = next;
             }
             _ => {
-                let (blk, next) = up_block(&up);
+                up_block(&mut blk, &mut up);
                 terms += eval(&mut sums, &mut acc, &blk);
-                up = next;
             }
         }
     };
