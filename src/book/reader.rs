@@ -51,9 +51,26 @@ impl fmt::Display for RowError {
 }
 
 fn text(field: &[u8]) -> Result<&str, String> {
-    std::str::from_utf8(field)
-        .map(str::trim)
-        .map_err(|_| "is not valid UTF-8".to_string())
+    let s = std::str::from_utf8(field).map_err(|_| "is not valid UTF-8".to_string())?;
+    // Trimming (Unicode white space) is only needed when an end byte is not
+    // a visible ASCII character; usually neither is.
+    let visible = |b: Option<&u8>| b.is_some_and(u8::is_ascii_graphic);
+    if visible(field.first()) && visible(field.last()) {
+        Ok(s)
+    } else {
+        Ok(s.trim())
+    }
+}
+
+/// `kind` in any other spelling: any case, surrounding spaces.
+#[cold]
+fn general_kind(field: &[u8]) -> Result<OptionKind, String> {
+    let raw = text(field).map_err(|e| format!("kind {e}"))?;
+    match raw.parse() {
+        Ok(k) => Ok(k),
+        Err(()) if raw.is_empty() => Err("kind is missing".into()),
+        Err(()) => Err(format!("kind '{raw}' is not call or put")),
+    }
 }
 
 #[inline]
@@ -166,11 +183,10 @@ pub fn parse_row<'a>(
             schema.width
         )));
     }
-    let kind_raw = text(&rec[schema.kind]).map_err(|e| err(format!("kind {e}")))?;
-    let kind: OptionKind = match kind_raw.parse() {
-        Ok(k) => k,
-        Err(()) if kind_raw.is_empty() => return Err(err("kind is missing".into())),
-        Err(()) => return Err(err(format!("kind '{kind_raw}' is not call or put"))),
+    let kind = match &rec[schema.kind] {
+        b"call" => OptionKind::Call,
+        b"put" => OptionKind::Put,
+        other => general_kind(other).map_err(err)?,
     };
     let spot = number(rec, schema.spot, "spot").map_err(err)?;
     let strike = number(rec, schema.strike, "strike").map_err(err)?;
