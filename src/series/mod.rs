@@ -249,7 +249,12 @@ pub fn price(c: &Contract) -> Result<SeriesResult, SeriesError> {
         OptionKind::Call => wt.a,
         OptionKind::Put => wt.b,
     };
-    let n0 = mu_w.floor() as u64;
+    // Start at the mode of the bounding law, or at 0 when the mode is inside
+    // the first block anyway (then there is no downward side to sum).
+    let n0 = match mu_w.floor() as u64 {
+        mode if mode < LANES as u64 => 0,
+        mode => mode,
+    };
     let a0 = pmf(n0, mu_a);
     let b0 = pmf(n0, mu_b);
     let (a_prev0, b_prev0) = if n0 == 0 {
