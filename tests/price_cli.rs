@@ -260,3 +260,56 @@ fn a_directory_is_reported_once_and_clearly() {
     assert!(err.contains("it is a directory"), "{err}");
     assert_eq!(err.matches("directory").count(), 1, "{err}");
 }
+
+#[test]
+fn quoted_fields_blank_lines_and_a_bom_are_read_like_any_csv_reader() {
+    // RFC 4180 quoting (comma, doubled quote and a line break inside fields),
+    // a blank line, a byte-order mark, spaces and capitals around values.
+    let book =
+        "\u{feff}id,underlying,kind,spot,strike,expiry,rate,vol,jump_rate,jump_mean,jump_vol\n\
+        \"A,1\",\"ZEP \"\"X\"\"\",call,\"100\",100,1,0.01,0.2,0.5,-0.1,0.15\n\
+        \n\
+        \"multi\nline\",Q,put,100,90,0.5,0.01,0.2,0.5,-0.1,0.15\n\
+        C3,Q, Call , 100 ,90,0.5,0.01,0.2,0.5,-0.1,0.15\n\
+        C4,Q,put,100,abc,0.5,0.01,0.2,0.5,-0.1,0.15\n\
+        C5,Q,call,100,100,1,0.01,0.2,0.5,-0.1,0.15\n\
+        C6,Q,call,100,90,0.5,0.01,0.2,0.5,-0.1,0.15";
+    let out = saltus()
+        .args(["price", "-", "-q"])
+        .write_stdin(book)
+        .output()
+        .unwrap();
+    let text = String::from_utf8(out.stdout).unwrap();
+    let (h, rows) = read_csv(&text);
+    assert_eq!(
+        h[0], "id",
+        "the byte-order mark is not part of the first name"
+    );
+    assert_eq!(rows.len(), 6);
+    let (id, und, status, price) = (
+        col(&h, "id"),
+        col(&h, "underlying"),
+        col(&h, "status"),
+        col(&h, "price"),
+    );
+    assert_eq!(rows[0][id], "A,1");
+    assert_eq!(rows[0][und], "ZEP \"X\"");
+    assert_eq!(rows[1][id], "multi\nline");
+    // Quoting changes nothing about the numbers: rows 1 and 5 are the same
+    // contract, and so are rows 3 (spaces, capitals) and 6.
+    assert_eq!(rows[0][price], rows[4][price]);
+    assert_eq!(rows[2][price], rows[5][price]);
+    for r in [0, 1, 2, 4, 5] {
+        assert_eq!(rows[r][status], "ok", "row {r}");
+    }
+    // Header line 1, blank line 3, the quoted line break spans lines 4-5.
+    assert_eq!(
+        rows[3][status],
+        "error: line 7: strike is not a number: 'abc'"
+    );
+    // Echoed fields are re-quoted only where needed.
+    assert!(
+        text.contains("\"A,1\",\"ZEP \"\"X\"\"\",call,100,100,1,"),
+        "{text}"
+    );
+}
