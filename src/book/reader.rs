@@ -73,7 +73,7 @@ fn general_kind(field: &[u8]) -> Result<OptionKind, String> {
     }
 }
 
-#[inline]
+#[inline(always)]
 fn number(rec: &Record, idx: usize, name: &str) -> Result<f64, String> {
     let raw = rec.get(idx).unwrap_or(b"");
     match plain_decimal(raw) {
@@ -106,7 +106,7 @@ const POW10: [f64; 23] = [
 /// `m / 10^f` with `m < 2^53` and `f <= 22`: both are exact doubles, so the
 /// one division is correctly rounded (Clinger's fast path) and the result is
 /// the same double `str::parse` gives. `None` for any other text.
-#[inline]
+#[inline(always)]
 fn plain_decimal(s: &[u8]) -> Option<f64> {
     let (negative, digits) = match s.split_first() {
         Some((b'-', rest)) => (true, rest),
@@ -144,6 +144,7 @@ fn plain_decimal(s: &[u8]) -> Option<f64> {
     Some(if negative { -v } else { v })
 }
 
+#[inline(always)]
 fn optional_number(
     rec: &Record,
     idx: Option<usize>,
