@@ -9,37 +9,32 @@ use saltus::greeks::RAW_COLUMNS;
 use saltus::series;
 use std::fmt::Write as _;
 
-/// A book of typical rows (lambda T below 5), like `scripts/make_book.py`.
+mod common;
+
+/// The typical book as CSV text, rounded like a real book
+/// (`scripts/make_book.py` draws from the same ranges).
 fn typical_csv(n: usize) -> String {
-    let mut state = 987_654_321u64;
-    let mut u = || {
-        state = state
-            .wrapping_mul(6364136223846793005)
-            .wrapping_add(1442695040888963407);
-        (state >> 11) as f64 / (1u64 << 53) as f64
-    };
+    let mut u = common::Lcg::new(987_654_321);
     let mut text = String::from(
         "id,underlying,kind,spot,strike,expiry,rate,div_yield,vol,jump_rate,jump_mean,jump_vol,quantity\n",
     );
     for i in 0..n {
-        let s = 20.0 + 480.0 * u();
-        let t = 0.02 + 2.98 * u();
-        let kind = if i % 2 == 0 { "put" } else { "call" };
-        let lam = 0.05 + u() * (1.6f64.min(4.9 / t) - 0.05);
+        let r = common::typical_row(i, &mut u);
+        let kind = if r.call { "call" } else { "put" };
         writeln!(
             text,
             "R{i},SYN-{},{kind},{:.2},{:.2},{:.4},{:.4},{:.4},{:.3},{:.3},{:.3},{:.3},{}",
             i % 7,
-            s,
-            s * (0.6 + 0.9 * u()),
-            t,
-            0.06 * u(),
-            0.03 * u(),
-            0.1 + 0.4 * u(),
-            lam,
-            -0.3 + 0.4 * u(),
-            0.02 + 0.38 * u(),
-            (u() * 200.0) as i64 - 100,
+            r.spot,
+            r.strike,
+            r.expiry,
+            r.rate,
+            r.div_yield,
+            r.vol,
+            r.jump_rate,
+            r.jump_mean,
+            r.jump_vol,
+            (u.next() * 200.0) as i64 - 100,
         )
         .unwrap();
     }

@@ -7,37 +7,30 @@ use saltus::model::{Contract, JumpParams, OptionKind};
 use saltus::series;
 use std::hint::black_box;
 
+mod common;
+
 fn typical_book(n: usize) -> Vec<Contract> {
-    // A fixed linear-congruential sequence: reproducible, no extra crates.
-    let mut state = 12345u64;
-    let mut u = || {
-        state = state
-            .wrapping_mul(6364136223846793005)
-            .wrapping_add(1442695040888963407);
-        (state >> 11) as f64 / (1u64 << 53) as f64
-    };
+    let mut u = common::Lcg::new(12345);
     (0..n)
         .map(|i| {
-            let s = 20.0 + 480.0 * u();
-            let t = 0.02 + 2.98 * u();
-            let kind = if i % 2 == 0 {
-                OptionKind::Put
-            } else {
+            let r = common::typical_row(i, &mut u);
+            let kind = if r.call {
                 OptionKind::Call
+            } else {
+                OptionKind::Put
             };
-            let lam = 0.05 + u() * (1.6f64.min(4.9 / t) - 0.05);
             Contract::new(
                 kind,
-                s,
-                s * (0.6 + 0.9 * u()),
-                t,
-                0.06 * u(),
-                0.03 * u(),
-                0.1 + 0.4 * u(),
+                r.spot,
+                r.strike,
+                r.expiry,
+                r.rate,
+                r.div_yield,
+                r.vol,
                 JumpParams {
-                    rate: lam,
-                    mean: -0.3 + 0.4 * u(),
-                    vol: 0.02 + 0.38 * u(),
+                    rate: r.jump_rate,
+                    mean: r.jump_mean,
+                    vol: r.jump_vol,
                 },
             )
             .unwrap()

@@ -35,7 +35,7 @@ pub fn norm_cdf(x: f64) -> f64 {
 /// underflows and the three-term asymptotic series is more than enough.
 #[inline]
 pub fn mills_ratio(z: f64) -> f64 {
-    use crate::mills_table::{COEFFS, DEGREE, PIECES};
+    use crate::mills_table::{COEFFS, PIECES};
     const Y0: f64 = 1.0 / 11.0;
     if z > 40.0 {
         let r = 1.0 / (z * z);
@@ -45,10 +45,16 @@ pub fn mills_ratio(z: f64) -> f64 {
     let u = (y - Y0) * (PIECES as f64 / (1.0 - Y0));
     let i = (u as usize).min(PIECES - 1);
     let t = 2.0 * (u - i as f64) - 1.0;
-    // Estrin's scheme (coefficients are stored highest degree first): a
-    // dependency depth of four multiply-adds instead of eight.
-    const _: () = assert!(DEGREE == 8);
-    let c = &COEFFS[i];
+    mills_piece(&COEFFS[i], t)
+}
+
+/// One piece of the Mills-ratio table at `t` in `[-1, 1]`, by Estrin's
+/// scheme (coefficients stored highest degree first): a dependency depth of
+/// four multiply-adds instead of eight. Shared with the series lane kernel
+/// so that both round identically.
+#[inline(always)]
+pub(crate) fn mills_piece(c: &[f64; crate::mills_table::DEGREE + 1], t: f64) -> f64 {
+    const _: () = assert!(crate::mills_table::DEGREE == 8);
     let t2 = t * t;
     let t4 = t2 * t2;
     let q0 = c[8] + c[7] * t;

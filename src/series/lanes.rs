@@ -18,8 +18,8 @@
 //! terms one by one with the scalar code.
 
 use super::{Setup, Sums, Weights};
-use crate::mills_table::{COEFFS, DEGREE, PIECES};
-use crate::normal::FRAC_1_SQRT_2PI;
+use crate::mills_table::{COEFFS, PIECES};
+use crate::normal::{mills_piece, FRAC_1_SQRT_2PI};
 
 /// Terms per block.
 pub(super) const LANES: usize = 8;
@@ -291,7 +291,6 @@ pub fn exp_neg(u: f64) -> f64 {
 #[inline(always)]
 fn mills(z: &Lanes) -> Lanes {
     const Y0: f64 = 1.0 / 11.0;
-    const _: () = assert!(DEGREE == 8);
     let mut out = [0.0; LANES];
     let mut t = [0.0; LANES];
     let mut piece = [0usize; LANES];
@@ -306,17 +305,7 @@ fn mills(z: &Lanes) -> Lanes {
         piece[j] = ((i + ROUND_SHIFT).to_bits() - ROUND_SHIFT_BITS) as usize;
     }
     for j in 0..LANES {
-        let c = &COEFFS[piece[j].min(PIECES - 1)];
-        let t = t[j];
-        let t2 = t * t;
-        let t4 = t2 * t2;
-        let q0 = c[8] + c[7] * t;
-        let q1 = c[6] + c[5] * t;
-        let q2 = c[4] + c[3] * t;
-        let q3 = c[2] + c[1] * t;
-        let r0 = q0 + q1 * t2;
-        let r1 = q2 + q3 * t2;
-        out[j] = (r0 + r1 * t4) + c[0] * (t4 * t4);
+        out[j] = mills_piece(&COEFFS[piece[j].min(PIECES - 1)], t[j]);
     }
     out
 }
