@@ -166,8 +166,11 @@ impl<R: Read> RecordReader<R> {
             self.end -= self.pos;
             self.pos = 0;
         }
-        if self.buf.len() < self.end + self.read_size {
-            self.buf.resize(self.end + self.read_size, 0);
+        // Read at least as much as is pending, so that a record longer than
+        // the read size costs a geometric, not quadratic, amount of copying.
+        let want = self.read_size.max(self.end);
+        if self.buf.len() < self.end + want {
+            self.buf.resize(self.end + want, 0);
         }
         loop {
             match self.src.read(&mut self.buf[self.end..]) {
@@ -221,30 +224,46 @@ impl<R: Read> RecordReader<R> {
             }
         }
         let line = self.line;
-        // Find the end of the line, reading more if needed.
+        // Find the first line break, reading more if needed. Stopping at
+        // '\r' as well keeps files with lone-CR endings linear: their
+        // records then go through the general path one at a time.
         let mut searched = 0;
-        let nl = loop {
+        let brk = loop {
             let hay = &self.buf[self.pos + searched..self.end];
-            if let Some(i) = memchr::memchr(b'\n', hay) {
-                break Some(self.pos + searched + i);
+            if let Some(i) = memchr::memchr2(b'\n', b'\r', hay) {
+                let at = self.pos + searched + i;
+                // A '\r' needs the next byte to tell "\r\n" from a lone CR.
+                if self.buf[at] == b'\r' && at + 1 == self.end {
+                    searched = at - self.pos;
+                    if self.fill()? {
+                        continue;
+                    }
+                }
+                break Some(at);
             }
             searched = self.end - self.pos;
             if !self.fill()? {
                 break None;
             }
         };
-        let stop = nl.unwrap_or(self.end);
-        let mut body = &self.buf[self.pos..stop];
-        if let [rest @ .., b'\r'] = body {
-            body = rest;
-        }
-        if memchr::memchr2(b'"', b'\r', body).is_none() {
-            rec.bytes.extend_from_slice(body);
-            comma_ends(body, &mut rec.ends);
-            rec.plain = true;
-            self.pos = nl.map_or(self.end, |i| i + 1);
-            self.line += u64::from(nl.is_some());
-            return Ok(Some(line));
+        // The body and where the next record starts, for a plain "\n" or
+        // "\r\n" ending (or the end of the input).
+        let plain_end = match brk {
+            None => Some((self.end, self.end)),
+            Some(at) if self.buf[at] == b'\n' => Some((at, at + 1)),
+            Some(at) if at + 1 < self.end && self.buf[at + 1] == b'\n' => Some((at, at + 2)),
+            Some(_) => None, // a lone CR
+        };
+        if let Some((stop, next)) = plain_end {
+            let body = &self.buf[self.pos..stop];
+            if memchr::memchr(b'"', body).is_none() {
+                rec.bytes.extend_from_slice(body);
+                comma_ends(body, &mut rec.ends);
+                rec.plain = true;
+                self.line += u64::from(next > stop);
+                self.pos = next;
+                return Ok(Some(line));
+            }
         }
         self.read_general(rec)?;
         Ok(Some(line))
@@ -389,6 +408,19 @@ mod tests {
             want.push(text.len());
             assert_eq!(ends, want, "{text:?}");
         }
+    }
+
+    #[test]
+    fn long_books_with_lone_cr_endings_read_like_the_csv_crate() {
+        let text: String = (0..20_000)
+            .map(|i| format!("r{i},\"q{i}\",{}\r", i % 7))
+            .collect();
+        let (recs, _) = ours(text.as_bytes(), 4096);
+        assert_eq!(recs.len(), 20_000);
+        assert_eq!(recs, csv_crate(text.as_bytes()));
+        // One record far longer than the read size.
+        let long = format!("a,{},c\nd\n", "x".repeat(100_000));
+        assert_eq!(ours(long.as_bytes(), 7).0, csv_crate(long.as_bytes()));
     }
 
     #[test]
