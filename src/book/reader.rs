@@ -69,7 +69,7 @@ fn general_kind(field: &[u8]) -> Result<OptionKind, String> {
     match raw.parse() {
         Ok(k) => Ok(k),
         Err(()) if raw.is_empty() => Err("kind is missing".into()),
-        Err(()) => Err(format!("kind '{raw}' is not call or put")),
+        Err(()) => Err(format!("kind '{}' is not call or put", raw.escape_debug())),
     }
 }
 
@@ -92,8 +92,11 @@ fn general_number(raw: &[u8], name: &str) -> Result<f64, String> {
     if raw.is_empty() {
         return Err(format!("{name} is missing"));
     }
-    fast_float2::parse::<f64, _>(raw)
-        .map_err(|_| format!("{name} is not a number: '{}'", String::from_utf8_lossy(raw)))
+    fast_float2::parse::<f64, _>(raw).map_err(|_| {
+        // Control characters are shown escaped, never written raw.
+        let shown = String::from_utf8_lossy(raw);
+        format!("{name} is not a number: '{}'", shown.escape_debug())
+    })
 }
 
 /// Exact powers of ten representable in a double.
@@ -236,6 +239,27 @@ pub fn parse_row<'a>(
 #[cfg(test)]
 mod tests {
     use super::*;
+
+    #[test]
+    fn control_characters_in_errors_are_escaped() {
+        let s = schema();
+        let e = parse_row(
+            &s,
+            &rec(&["call", "1\0", "1", "1", "0", "0.2", "0", "0", "0"]),
+            1,
+            2,
+        )
+        .unwrap_err();
+        assert_eq!(e.to_string(), "line 2: spot is not a number: '1\\0'");
+        let e = parse_row(
+            &s,
+            &rec(&["ca\tll", "1", "1", "1", "0", "0.2", "0", "0", "0"]),
+            1,
+            3,
+        )
+        .unwrap_err();
+        assert_eq!(e.to_string(), "line 3: kind 'ca\\tll' is not call or put");
+    }
 
     #[test]
     fn plain_decimals_parse_like_std() {
