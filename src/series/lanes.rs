@@ -8,9 +8,9 @@
 //! with AVX2, which is chosen at run time). Eight lanes rather than four
 //! halve the stopping-rule checks and give the core more independent work:
 //! 20% faster per row on the benchmark book although about two more terms
-//! per row are evaluated. The block width is the same on every machine, so
-//! the digits are too. No fused multiply-add is used, so both paths round
-//! identically and give the same digits on every x86-64 machine.
+//! per row are evaluated. The block width is the same on every machine and
+//! no fused multiply-add is used, so the AVX2 and the baseline code round
+//! identically: the same digits on every x86-64 machine.
 //!
 //! The exponential and the Mills ratio here are written for this use only:
 //! inputs outside their range (and zero-variance terms, overflowed moneyness)
