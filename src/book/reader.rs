@@ -76,10 +76,7 @@ fn general_kind(field: &[u8]) -> Result<OptionKind, String> {
 #[inline(always)]
 fn number(rec: &Record, idx: usize, name: &str) -> Result<f64, String> {
     let raw = rec.get(idx).unwrap_or(b"");
-    match plain_decimal(raw) {
-        Some(v) => Ok(v),
-        None => general_number(raw, name),
-    }
+    plain_decimal(raw).map_or_else(|| general_number(raw, name), Ok)
 }
 
 /// Everything but the plain form: surrounding spaces, exponents, long
@@ -154,16 +151,22 @@ fn optional_number(
     name: &str,
     default: f64,
 ) -> Result<f64, String> {
-    match idx {
-        Some(i) if !rec.get(i).unwrap_or(b"").trim_ascii().is_empty() => {
-            let v = number(rec, i, name)?;
-            if v.is_finite() {
-                Ok(v)
-            } else {
-                Err(format!("{name} is not a finite number ({v})"))
-            }
-        }
-        _ => Ok(default),
+    let Some(i) = idx else {
+        return Ok(default);
+    };
+    let raw = rec.get(i).unwrap_or(b"");
+    // A plain decimal is finite; an empty field takes the default.
+    if let Some(v) = plain_decimal(raw) {
+        return Ok(v);
+    }
+    if raw.trim_ascii().is_empty() {
+        return Ok(default);
+    }
+    let v = general_number(raw, name)?;
+    if v.is_finite() {
+        Ok(v)
+    } else {
+        Err(format!("{name} is not a finite number ({v})"))
     }
 }
 
@@ -334,17 +337,9 @@ mod tests {
     }
 
     fn schema() -> Schema {
-        Schema::from_headers(&csv::ByteRecord::from(vec![
-            "kind",
-            "spot",
-            "strike",
-            "expiry",
-            "rate",
-            "vol",
-            "jump_rate",
-            "jump_mean",
-            "jump_vol",
-        ]))
+        Schema::from_headers(&csv::ByteRecord::from(
+            crate::book::schema::REQUIRED.to_vec(),
+        ))
         .unwrap()
     }
 

@@ -224,13 +224,14 @@ impl<R: Read> RecordReader<R> {
             }
         }
         let line = self.line;
-        // Find the first line break, reading more if needed. Stopping at
-        // '\r' as well keeps files with lone-CR endings linear: their
-        // records then go through the general path one at a time.
+        // One scan for the first line break or quote, reading more if
+        // needed. Stopping at '\r' as well keeps files with lone-CR endings
+        // linear: their records then go through the general path one at a
+        // time. A quote before the line break means the general path too.
         let mut searched = 0;
-        let brk = loop {
+        let stop_at = loop {
             let hay = &self.buf[self.pos + searched..self.end];
-            if let Some(i) = memchr::memchr2(b'\n', b'\r', hay) {
+            if let Some(i) = memchr::memchr3(b'\n', b'\r', b'"', hay) {
                 let at = self.pos + searched + i;
                 // A '\r' needs the next byte to tell "\r\n" from a lone CR.
                 if self.buf[at] == b'\r' && at + 1 == self.end {
@@ -246,24 +247,24 @@ impl<R: Read> RecordReader<R> {
                 break None;
             }
         };
-        // The body and where the next record starts, for a plain "\n" or
-        // "\r\n" ending (or the end of the input).
-        let plain_end = match brk {
+        // The quote-free body and where the next record starts, for a plain
+        // "\n" or "\r\n" ending (or the end of the input).
+        let plain_end = match stop_at {
             None => Some((self.end, self.end)),
-            Some(at) if self.buf[at] == b'\n' => Some((at, at + 1)),
-            Some(at) if at + 1 < self.end && self.buf[at + 1] == b'\n' => Some((at, at + 2)),
-            Some(_) => None, // a lone CR
+            Some(at) => match self.buf[at] {
+                b'\n' => Some((at, at + 1)),
+                b'\r' if at + 1 < self.end && self.buf[at + 1] == b'\n' => Some((at, at + 2)),
+                _ => None, // a lone CR, or a quote
+            },
         };
         if let Some((stop, next)) = plain_end {
             let body = &self.buf[self.pos..stop];
-            if memchr::memchr(b'"', body).is_none() {
-                rec.bytes.extend_from_slice(body);
-                comma_ends(body, &mut rec.ends);
-                rec.plain = true;
-                self.line += u64::from(next > stop);
-                self.pos = next;
-                return Ok(Some(line));
-            }
+            rec.bytes.extend_from_slice(body);
+            comma_ends(body, &mut rec.ends);
+            rec.plain = true;
+            self.line += u64::from(next > stop);
+            self.pos = next;
+            return Ok(Some(line));
         }
         self.read_general(rec)?;
         Ok(Some(line))
