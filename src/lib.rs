@@ -39,3 +39,5 @@ pub mod poisson;
 pub mod report;
 pub mod risk;
 pub mod series;
+#[cfg(test)]
+mod test_rng;

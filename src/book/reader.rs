@@ -267,13 +267,8 @@ mod tests {
     #[test]
     fn plain_decimals_parse_like_std() {
         // Reference: Rust's `str::parse::<f64>` (correctly rounded).
-        let mut seed = 0x9e37_79b9_7f4a_7c15u64;
-        let mut next = |k: u64| {
-            seed ^= seed << 13;
-            seed ^= seed >> 7;
-            seed ^= seed << 17;
-            seed % k
-        };
+        let mut rng = crate::test_rng::TestRng::new(0x9e37_79b9_7f4a_7c15);
+        let mut next = |k: u64| rng.below(k);
         let mut fast = 0;
         for _ in 0..200_000 {
             let int_len = 1 + next(9) as usize;

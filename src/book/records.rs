@@ -435,13 +435,8 @@ mod tests {
     #[test]
     fn random_texts_match_the_csv_crate() {
         let alphabet = b"ab,,\"\r\n\n 1";
-        let mut seed = 0x1234_5678_9abc_def1u64;
-        let mut next = |k: usize| {
-            seed ^= seed << 13;
-            seed ^= seed >> 7;
-            seed ^= seed << 17;
-            (seed % k as u64) as usize
-        };
+        let mut rng = crate::test_rng::TestRng::new(0x1234_5678_9abc_def1);
+        let mut next = |k: usize| rng.below(k as u64) as usize;
         for _ in 0..3000 {
             let len = next(40);
             let text: Vec<u8> = (0..len).map(|_| alphabet[next(alphabet.len())]).collect();

@@ -350,13 +350,8 @@ mod tests {
         if !wide_lanes_available() {
             return;
         }
-        let mut seed = 0x2545_f491_4f6c_dd1du64;
-        let mut next = || {
-            seed ^= seed << 13;
-            seed ^= seed >> 7;
-            seed ^= seed << 17;
-            (seed >> 11) as f64 / (1u64 << 53) as f64
-        };
+        let mut rng = crate::test_rng::TestRng::new(0x2545_f491_4f6c_dd1d);
+        let mut next = || rng.unit();
         let mut compared = 0;
         for _ in 0..2000 {
             let st = Setup {
