@@ -1,7 +1,8 @@
 //! `saltus crosscheck`: every row priced by the series, Fourier and Monte
 //! Carlo engines, with a per-row verdict and a validation summary on stderr.
 
-use super::{open_input, open_output, report_rows};
+use super::output::Output;
+use super::{open_input, report_rows};
 use anyhow::{bail, Result};
 use indicatif::{ProgressBar, ProgressStyle};
 use saltus::book::{run_book, PipelineOptions};
@@ -15,19 +16,22 @@ use std::time::Instant;
 
 /// Arguments of `saltus crosscheck`.
 #[derive(clap::Args)]
-#[command(
-    after_help = "Appends: price_series, price_fourier, price_mc, mc_stderr, mc_z, \
-fourier_gap, verdict, status.\n\
+#[command(after_help = concat!(
+    columns_read!(),
+    "Columns written: every input column echoed, then price_series, price_fourier, price_mc, \
+mc_stderr, mc_z, fourier_gap, verdict, status.\n\
 verdict is 'agree', 'inconclusive: <why>' (an engine could not resolve the price, e.g. no \
 in-the-money Monte Carlo paths) or 'disagree: <why>'.\n\
 Each row's random stream is derived from --seed and the row's id, so results do not depend on \
 thread count, row order or how the book is split.\n\
-Exit codes: 0 all rows checked and at most --allow-disagree disagreements; 1 otherwise; 2 fatal error."
-)]
+Exit codes: 0 all rows checked and at most --allow-disagree disagreements; 1 otherwise; ",
+    exit_2!()
+))]
 pub struct Args {
     /// The book (CSV); `-` reads standard input.
     pub book: PathBuf,
-    /// Where to write the report; `-` or absent: standard output.
+    /// Output file, replaced only when the run completes; `-`: standard output
+    /// [default: standard output]
     #[arg(short, long, value_name = "REPORT.csv")]
     pub output: Option<PathBuf>,
     /// Monte Carlo paths per row (antithetic pairs count as two).
@@ -35,24 +39,30 @@ pub struct Args {
         long,
         value_name = "N",
         conflicts_with = "target_se",
-        default_value_t = 1_000_000
+        default_value_t = 1_000_000,
+        allow_negative_numbers = true
     )]
     pub paths: u64,
     /// Keep adding paths until the standard error is below X (absolute), or
     /// below X% of the price when written with a percent sign (e.g. 0.05%).
-    #[arg(long, value_name = "X")]
+    #[arg(long, value_name = "X", allow_hyphen_values = true)]
     pub target_se: Option<String>,
     /// Path cap per row for --target-se.
-    #[arg(long, value_name = "N", default_value_t = 1 << 26)]
+    #[arg(long, value_name = "N", default_value_t = 1 << 26, allow_negative_numbers = true)]
     pub max_paths: u64,
     /// Seed of the random streams.
-    #[arg(long, value_name = "S", default_value_t = 20_261_201)]
+    #[arg(
+        long,
+        value_name = "S",
+        default_value_t = 20_261_201,
+        allow_negative_numbers = true
+    )]
     pub seed: u64,
-    /// Fix the jump-intensity multiplier of the importance sampling (1 = none);
-    /// by default a pilot run chooses it per row.
-    #[arg(long, value_name = "G")]
+    /// Fix the jump-intensity multiplier of the importance sampling (1 = none)
+    /// [default: chosen per row by a pilot run]
+    #[arg(long, value_name = "G", allow_negative_numbers = true)]
     pub gamma: Option<f64>,
-    /// Shift of the jump-size mean under the sampling law (default 0).
+    /// Shift of the jump-size mean under the sampling law.
     #[arg(
         long,
         value_name = "X",
@@ -67,13 +77,28 @@ pub struct Args {
     #[arg(long)]
     pub no_control: bool,
     /// Largest accepted |z| of Monte Carlo against the series.
-    #[arg(long, value_name = "Z", default_value_t = 4.0)]
+    #[arg(
+        long,
+        value_name = "Z",
+        default_value_t = 4.0,
+        allow_negative_numbers = true
+    )]
     pub z_max: f64,
     /// Largest accepted relative gap between the Fourier and series prices.
-    #[arg(long, value_name = "R", default_value_t = 1e-8)]
+    #[arg(
+        long,
+        value_name = "R",
+        default_value = "1e-8",
+        allow_negative_numbers = true
+    )]
     pub fourier_tol: f64,
     /// Disagreeing rows tolerated before the exit code turns non-zero.
-    #[arg(long, value_name = "N", default_value_t = 0)]
+    #[arg(
+        long,
+        value_name = "N",
+        default_value_t = 0,
+        allow_negative_numbers = true
+    )]
     pub allow_disagree: u64,
     /// No progress bar and no summary on stderr.
     #[arg(short, long)]
@@ -175,8 +200,8 @@ pub fn run(args: Args) -> Result<ExitCode> {
     let records = Mutex::new(Vec::new());
     let bar = progress(&args);
     let input = open_input(&args.book)?;
-    let output = open_output(args.output.as_deref())?;
-    let summary = run_book(input, output, &opts, |row, out| {
+    let mut output = Output::open(args.output.as_deref(), &args.book)?;
+    let summary = run_book(input, &mut output, &opts, |row, out| {
         let key = stream_key(cfg.mc.seed, &row.id());
         let r = check(&row.contract, key, &cfg).map_err(|e| e.to_string())?;
         out.push_f64(r.price_series);
@@ -205,6 +230,7 @@ pub fn run(args: Args) -> Result<ExitCode> {
         bar.inc(1);
         Ok(())
     })?;
+    output.commit()?;
     bar.finish_and_clear();
     let check = CheckSummary::from_records(records.into_inner().expect("records lock"), 5);
     if !args.quiet {

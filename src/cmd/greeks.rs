@@ -2,7 +2,8 @@
 //! or both side by side with their differences flagged (the validator's
 //! Greeks check).
 
-use super::{open_input, open_output, report_rows};
+use super::output::Output;
+use super::{open_input, report_rows};
 use anyhow::{bail, Result};
 use saltus::book::{run_book, PipelineOptions};
 use saltus::engine::{FourierEngine, PricingEngine, SeriesEngine};
@@ -39,46 +40,67 @@ pub enum Method {
 
 /// Arguments of `saltus greeks`.
 #[derive(clap::Args)]
-#[command(
-    after_help = "Greeks (raw units, per 1.00 of each input; theta = -dV/dT per year):\n  \
-delta gamma vega theta rho div_rho d_jump_rate d_jump_mean d_jump_vol vanna volga\n\
---method analytic|fd appends: price, the 11 Greeks, status.\n\
---method both appends for each Greek G: G_analytic, G_fd, G_abs_diff, G_rel_diff, G_flag \
-(ok or DIFF), then price, flagged (the names of flagged Greeks), status.\n\
+#[command(after_help = concat!(
+    columns_read!(),
+    "Columns written: every input column echoed, then\n  \
+--method analytic|fd: price, the 11 Greeks, status\n  \
+--method both: for each Greek G: G_analytic, G_fd, G_abs_diff, G_rel_diff, G_flag (ok or DIFF), \
+then price, flagged (the names of flagged Greeks), status.\n\
+The Greeks, in raw units (per 1.00 of each input; theta = -dV/dT per year): delta gamma vega \
+theta rho div_rho d_jump_rate d_jump_mean d_jump_vol vanna volga.\n\
 A Greek is flagged when |fd - analytic| > rel_tol x |analytic| + floor + noise, where noise is \
 the engine's error propagated through the difference (see docs/risk.md).\n\
-Exit codes: 0 no row failed and nothing flagged; 1 otherwise; 2 fatal error."
-)]
+Exit codes: 0 no row failed and nothing flagged; 1 otherwise; ",
+    exit_2!()
+))]
 pub struct Args {
     /// The book (CSV); `-` reads standard input.
     pub book: PathBuf,
-    /// Where to write the Greeks; `-` or absent: standard output.
+    /// Output file, replaced only when the run completes; `-`: standard output
+    /// [default: standard output]
     #[arg(short, long, value_name = "OUT.csv")]
     pub output: Option<PathBuf>,
-    /// Engine the finite differences reprice with.
-    #[arg(long, value_enum, default_value = "series")]
+    /// Engine the finite differences reprice with: series (the closed form),
+    /// fourier (Lewis), mc (Monte Carlo on common random numbers).
+    #[arg(
+        long,
+        value_enum,
+        default_value = "series",
+        hide_possible_values = true
+    )]
     pub engine: EngineChoice,
-    /// Analytic, finite-difference, or both.
-    #[arg(long, value_enum, default_value = "both")]
+    /// Which Greeks: analytic (closed form), fd (bump and reprice with
+    /// --engine), both (side by side, differences flagged).
+    #[arg(long, value_enum, default_value = "both", hide_possible_values = true)]
     pub method: Method,
-    /// Relative tolerance for --method both (default: 1e-6 series, 1e-5 fourier, 0.05 mc).
-    #[arg(long, value_name = "R")]
+    /// Relative tolerance for --method both [default: 1e-6 series, 1e-5 fourier, 0.05 mc]
+    #[arg(long, value_name = "R", allow_negative_numbers = true)]
     pub rel_tol: Option<f64>,
     /// Spot bump as a fraction of the one-sd move S min(1, s sqrt T)
-    /// (default: 1e-3 series, 3e-3 fourier, 0.2 mc).
-    #[arg(long, value_name = "H")]
+    /// [default: 1e-3 series, 3e-3 fourier, 0.2 mc]
+    #[arg(long, value_name = "H", allow_negative_numbers = true)]
     pub spot_bump: Option<f64>,
-    /// Absolute vol bump (default: 1e-3 series, 3e-3 fourier, 1e-2 mc).
-    #[arg(long, value_name = "H")]
+    /// Absolute vol bump [default: 1e-3 series, 3e-3 fourier, 1e-2 mc]
+    #[arg(long, value_name = "H", allow_negative_numbers = true)]
     pub vol_bump: Option<f64>,
-    /// Turn Richardson extrapolation off (it is on for series and fourier, off for mc).
+    /// Turn Richardson extrapolation off (it is used with series and fourier, never with mc).
     #[arg(long)]
     pub no_richardson: bool,
     /// Monte Carlo paths per repricing (--engine mc).
-    #[arg(long, value_name = "N", default_value_t = 1_000_000)]
+    #[arg(
+        long,
+        value_name = "N",
+        default_value_t = 1_000_000,
+        allow_negative_numbers = true
+    )]
     pub paths: u64,
     /// Monte Carlo seed (--engine mc).
-    #[arg(long, value_name = "S", default_value_t = 20_261_201)]
+    #[arg(
+        long,
+        value_name = "S",
+        default_value_t = 20_261_201,
+        allow_negative_numbers = true
+    )]
     pub seed: u64,
     /// No summary on stderr.
     #[arg(short, long)]
@@ -146,8 +168,8 @@ pub fn run(args: Args) -> Result<ExitCode> {
         ..McConfig::default()
     };
     let input = open_input(&args.book)?;
-    let output = open_output(args.output.as_deref())?;
-    let summary = run_book(input, output, &opts, |row, out| {
+    let mut output = Output::open(args.output.as_deref(), &args.book)?;
+    let summary = run_book(input, &mut output, &opts, |row, out| {
         let c = &row.contract;
         let fd = |_: ()| -> Result<finite_diff::FdGreeks, String> {
             let mc;
@@ -222,6 +244,7 @@ pub fn run(args: Args) -> Result<ExitCode> {
         }
         Ok(())
     })?;
+    output.commit()?;
     let flagged = flagged_rows.load(Ordering::Relaxed);
     if !args.quiet {
         report_rows(&summary, "done", start.elapsed().as_secs_f64());

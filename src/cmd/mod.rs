@@ -1,14 +1,37 @@
 //! One module per command; shared helpers for opening books and reporting.
+//!
+//! Every command's help has the same layout: what it does, arguments,
+//! options (defaults shown once, as `[default: ...]`), then the columns it
+//! reads (`columns_read!`), what it writes, notes, and the exit codes
+//! (`exit_2!` for the fatal case, shared).
+
+/// The "Columns read" section of every command's help.
+macro_rules! columns_read {
+    () => {
+        "Columns read (by header name, any order, case-insensitive):\n  \
+required: kind, spot, strike, expiry, rate, vol, jump_rate, jump_mean, jump_vol\n  \
+optional: id, underlying, div_yield (0), quantity (1), multiplier (1, risk only)\n"
+    };
+}
+
+/// The fatal-error exit code of every command's help.
+macro_rules! exit_2 {
+    () => {
+        "2 fatal error (unreadable input, missing column, bad option, output refused or not \
+written; no output file is then replaced)."
+    };
+}
 
 pub mod crosscheck;
 pub mod greeks;
+pub mod output;
 pub mod price;
 pub mod risk;
 
 use anyhow::{Context, Result};
 use saltus::book::BookSummary;
 use std::fs::File;
-use std::io::{self, BufReader, BufWriter, Read, Write};
+use std::io::{self, BufReader, Read};
 use std::path::Path;
 use std::process::ExitCode;
 
@@ -22,22 +45,6 @@ pub fn open_input(path: &Path) -> Result<Box<dyn Read + Send>> {
             anyhow::bail!("cannot read {}: it is a directory", path.display());
         }
         Ok(Box::new(BufReader::with_capacity(1 << 20, f)))
-    }
-}
-
-/// Opens an output path, `-` or none meaning standard output.
-pub fn open_output(path: Option<&Path>) -> Result<Box<dyn Write + Send>> {
-    match path {
-        // Small buffers: the pipeline writes whole chunks, which then bypass
-        // the buffer instead of being copied through it.
-        None => Ok(Box::new(BufWriter::with_capacity(1 << 16, io::stdout()))),
-        Some(p) if p.as_os_str() == "-" => {
-            Ok(Box::new(BufWriter::with_capacity(1 << 16, io::stdout())))
-        }
-        Some(p) => {
-            let f = File::create(p).with_context(|| format!("cannot create {}", p.display()))?;
-            Ok(Box::new(BufWriter::with_capacity(1 << 16, f)))
-        }
     }
 }
 

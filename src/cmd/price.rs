@@ -1,7 +1,8 @@
 //! `saltus price`: every row of a book priced by the closed-form series, with
 //! all analytic Greeks, streamed in constant memory.
 
-use super::{open_input, open_output, report_rows, rows_exit_code};
+use super::output::Output;
+use super::{open_input, report_rows, rows_exit_code};
 use anyhow::Result;
 use saltus::book::{run_book, PipelineOptions};
 use saltus::greeks::{DESK_COLUMNS, RAW_COLUMNS};
@@ -13,20 +14,21 @@ use std::time::Instant;
 
 /// Arguments of `saltus price`.
 #[derive(clap::Args)]
-#[command(
-    after_help = "Columns (by header name, any order, case-insensitive):\n  \
-required: kind, spot, strike, expiry, rate, vol, jump_rate, jump_mean, jump_vol\n  \
-optional: id, underlying, div_yield (0), quantity (1)\n\
-Appends: price, delta, gamma, vega, theta, rho, div_rho, d_jump_rate, d_jump_mean, \
-d_jump_vol, terms, status.\n\
+#[command(after_help = concat!(
+    columns_read!(),
+    "Columns written: every input column echoed, then price, delta, gamma, vega, theta, rho, \
+div_rho, d_jump_rate, d_jump_mean, d_jump_vol, terms, status.\n\
 Greeks are raw partial derivatives per unit (vega per 1.00 of vol, theta per year);\n\
 --desk-units writes vega_1pt, theta_1d, rho_1pct, div_rho_1pct, d_jump_mean_1pct, d_jump_vol_1pct.\n\
-The book is streamed: memory does not grow with its size."
-)]
+The book is streamed: memory does not grow with its size.\n\
+Exit codes: 0 every row priced; 1 some rows failed; ",
+    exit_2!()
+))]
 pub struct Args {
     /// The book (CSV); `-` reads standard input.
     pub book: PathBuf,
-    /// Where to write the priced book; `-` or absent: standard output.
+    /// Output file, replaced only when the run completes; `-`: standard output
+    /// [default: standard output]
     #[arg(short, long, value_name = "OUT.csv")]
     pub output: Option<PathBuf>,
     /// Write vega per vol point, theta per calendar day, rho per percentage point
@@ -58,10 +60,10 @@ pub fn run(args: Args) -> Result<ExitCode> {
     let opts = PipelineOptions { result_columns };
     let worst_rel_bound = AtomicU64::new(0);
     let input = open_input(&args.book)?;
-    let output = open_output(args.output.as_deref())?;
+    let mut output = Output::open(args.output.as_deref(), &args.book)?;
     let desk = args.desk_units;
     let with_bound = args.with_bound;
-    let summary = run_book(input, output, &opts, |row, out| {
+    let summary = run_book(input, &mut output, &opts, |row, out| {
         let r = series::price(&row.contract).map_err(|e| e.to_string())?;
         let values = if desk {
             r.greeks.desk_units()
@@ -86,6 +88,7 @@ pub fn run(args: Args) -> Result<ExitCode> {
         }
         Ok(())
     })?;
+    output.commit()?;
     if !args.quiet {
         report_rows(&summary, "priced", start.elapsed().as_secs_f64());
         let worst = f64::from_bits(worst_rel_bound.load(Ordering::Relaxed));

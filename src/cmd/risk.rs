@@ -1,6 +1,7 @@
 //! `saltus risk`: exposures by underlying, full-revaluation scenario P&L,
 //! CSV files and a self-contained HTML page.
 
+use super::output::OutputDir;
 use super::{open_input, report_rows};
 use anyhow::{bail, Context, Result};
 use saltus::book::{run_book, PipelineOptions};
@@ -15,9 +16,23 @@ use std::process::ExitCode;
 use std::sync::Mutex;
 use std::time::Instant;
 
+/// The files of a report: an existing output directory holding anything
+/// else is refused, since it is replaced as a whole.
+const REPORT_FILES: [&str; 6] = [
+    "positions.csv",
+    "totals.csv",
+    "scenarios.csv",
+    "jump_scenarios.csv",
+    "greeks_vs_spot.csv",
+    "report.html",
+];
+
 /// Arguments of `saltus risk`.
 #[derive(clap::Args)]
-#[command(after_help = "Writes into DIR:\n  \
+#[command(after_help = concat!(
+    columns_read!(),
+    "Writes into DIR (all files of a run or none: they are written into a hidden staging \
+directory beside DIR, which replaces DIR as a whole when the run completes):\n  \
 positions.csv       every input row echoed, then price, delta, gamma, vega_1pt, theta_1d, rho_1pct, \
 div_rho_1pct, d_jump_rate, d_jump_mean_1pct, d_jump_vol_1pct, position_value, status\n  \
 totals.csv          exposures by underlying and for the book ((book) row), desk units\n  \
@@ -25,14 +40,17 @@ scenarios.csv       full-revaluation P&L on the spot x vol grid\n  \
 jump_scenarios.csv  P&L of an instantaneous jump by the model mean jump and by --jump-shock\n  \
 greeks_vs_spot.csv  cash delta, cash gamma and vega at each spot shock\n  \
 report.html         all of the above with SVG charts, self-contained\n\
-Positions are quantity x multiplier (optional columns, default 1) and grouped by `underlying`.\n\
+An existing DIR holding any other file is refused, never replaced.\n\
+Positions are quantity x multiplier and grouped by `underlying`.\n\
 Rows that fail keep their status in positions.csv, are listed in the report and excluded from \
 every total. The priced positions are held in memory for the scenarios.\n\
-Exit codes: 0 every row priced; 1 some rows failed; 2 fatal error.")]
+Exit codes: 0 every row priced; 1 some rows failed; ",
+    exit_2!()
+))]
 pub struct Args {
     /// The book (CSV); `-` reads standard input.
     pub book: PathBuf,
-    /// Output directory (created if needed).
+    /// Output directory, created or replaced as a whole when the run completes.
     #[arg(short, long, value_name = "DIR", default_value = "report")]
     pub output: PathBuf,
     /// Spot shocks in percent, comma-separated.
@@ -94,9 +112,10 @@ pub fn run(args: Args) -> Result<ExitCode> {
     if jump_shocks.iter().any(|j| !j.is_finite() || *j <= -1.0) {
         bail!("--jump-shock must be above -100%");
     }
-    std::fs::create_dir_all(&args.output)
-        .with_context(|| format!("cannot create {}", args.output.display()))?;
-    let positions_path = args.output.join("positions.csv");
+    // Everything is written into a staging directory, swapped in at the end.
+    let staged = OutputDir::stage(&args.output, &args.book, &REPORT_FILES)?;
+    let out_dir = staged.path().to_path_buf();
+    let positions_path = out_dir.join("positions.csv");
     let mut columns: Vec<String> = DESK_COLUMNS.iter().map(|s| s.to_string()).collect();
     columns.push("position_value".into());
     columns.push("status".into());
@@ -159,7 +178,8 @@ pub fn run(args: Args) -> Result<ExitCode> {
     };
     let report = risk::build(positions.into_inner().expect("positions lock"), spec)
         .map_err(anyhow::Error::msg)?;
-    report::write_all(&args.output, &report, &failed, &args.title)?;
+    report::write_all(&out_dir, &report, &failed, &args.title)?;
+    staged.commit()?;
     if !args.quiet {
         report_rows(&summary, "priced", start.elapsed().as_secs_f64());
         if !failed.is_empty() {
