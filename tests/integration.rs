@@ -7,6 +7,7 @@ mod finite_diff;
 mod fourier;
 mod identities;
 mod monte_carlo;
+mod output_safety_cli;
 mod price_cli;
 mod reference;
 mod risk_cli;

@@ -587,7 +587,7 @@ mod tests {
     }
 
     #[test]
-    fn issue8_atomic_file_is_replaced_only_on_commit() {
+    fn atomic_file_is_replaced_only_on_commit() {
         let dir = tempfile::tempdir().unwrap();
         let target = dir.path().join("out.csv");
         fs::write(&target, "old\n").unwrap();
@@ -606,7 +606,7 @@ mod tests {
     }
 
     #[test]
-    fn issue8_write_failure_keeps_the_old_file_and_removes_the_temporary() {
+    fn write_failure_keeps_the_old_file_and_removes_the_temporary() {
         let dir = tempfile::tempdir().unwrap();
         let target = dir.path().join("out.csv");
         fs::write(&target, "old\n").unwrap();
@@ -627,7 +627,7 @@ mod tests {
     }
 
     #[test]
-    fn issue8_output_dir_swaps_whole_directories() {
+    fn output_dir_swaps_whole_directories() {
         let dir = tempfile::tempdir().unwrap();
         let target = dir.path().join("report");
         fs::create_dir(&target).unwrap();
@@ -655,7 +655,7 @@ mod tests {
     }
 
     #[test]
-    fn issue8_fallback_swap_replaces_an_existing_directory() {
+    fn fallback_swap_replaces_an_existing_directory() {
         let dir = tempfile::tempdir().unwrap();
         let target = dir.path().join("report");
         let new = dir.path().join("staging");
