@@ -7,6 +7,7 @@ mod finite_diff;
 mod fourier;
 mod identities;
 mod monte_carlo;
+#[cfg(target_os = "linux")] // /dev/full, kill(1), ulimit
 mod output_safety_cli;
 mod price_cli;
 mod reference;
