@@ -130,7 +130,11 @@ fn issue8_risk_output_dir_holding_the_input_or_other_files_is_refused() {
         .output()
         .unwrap();
     assert_eq!(out.status.code(), Some(2), "{}", stderr(&out));
-    assert!(stderr(&out).contains("holds the input book"), "{}", stderr(&out));
+    assert!(
+        stderr(&out).contains("holds the input book"),
+        "{}",
+        stderr(&out)
+    );
     assert_eq!(names(&rep), ["book.csv"]);
     assert_eq!(fs::read_to_string(rep.join("book.csv")).unwrap(), book(3));
     // The same directory spelled differently (through a symbolic link).
@@ -223,7 +227,11 @@ fn issue8_write_failure_keeps_the_old_output_and_no_temporary_file() {
     fs::write(dir.path().join("out.csv"), "precious\n").unwrap();
     let out = run_with_small_disk(dir.path(), &["price", "b.csv", "-o", "out.csv"]);
     assert_eq!(out.status.code(), Some(2), "{}", stderr(&out));
-    assert!(stderr(&out).contains("cannot write out.csv"), "{}", stderr(&out));
+    assert!(
+        stderr(&out).contains("cannot write out.csv"),
+        "{}",
+        stderr(&out)
+    );
     assert_eq!(fs::read(dir.path().join("out.csv")).unwrap(), b"precious\n");
     assert_eq!(names(dir.path()), ["b.csv", "out.csv"]);
 
@@ -239,7 +247,12 @@ fn issue8_write_failure_keeps_the_old_output_and_no_temporary_file() {
     let out = std::process::Command::new(bin())
         .current_dir(dir.path())
         .args(["price", "b.csv"])
-        .stdout(fs::OpenOptions::new().write(true).open("/dev/full").unwrap())
+        .stdout(
+            fs::OpenOptions::new()
+                .write(true)
+                .open("/dev/full")
+                .unwrap(),
+        )
         .output()
         .unwrap();
     assert_eq!(out.status.code(), Some(2));
@@ -401,13 +414,23 @@ fn issue8_negative_option_values_reach_validation() {
     let dir = tempfile::tempdir().unwrap();
     fs::write(dir.path().join("b.csv"), book(2)).unwrap();
     let cases: [(&[&str], &str); 4] = [
-        (&["crosscheck", "b.csv", "--target-se", "-1"], "--target-se must be"),
+        (
+            &["crosscheck", "b.csv", "--target-se", "-1"],
+            "--target-se must be",
+        ),
         (&["crosscheck", "b.csv", "--gamma", "-2"], "--gamma must be"),
         (&["crosscheck", "b.csv", "--z-max", "-4"], "--z-max"),
-        (&["greeks", "b.csv", "--spot-bump", "-0.1"], "--spot-bump must be"),
+        (
+            &["greeks", "b.csv", "--spot-bump", "-0.1"],
+            "--spot-bump must be",
+        ),
     ];
     for (args, message) in cases {
-        let out = saltus().current_dir(dir.path()).args(args).output().unwrap();
+        let out = saltus()
+            .current_dir(dir.path())
+            .args(args)
+            .output()
+            .unwrap();
         assert_eq!(out.status.code(), Some(2), "{args:?}");
         let err = stderr(&out);
         assert!(!err.contains("unexpected argument"), "{args:?}: {err}");

@@ -92,26 +92,25 @@ pub fn install_signal_cleanup() {
     }
 }
 
-/// True when `a` and `b` name the same file (device and inode), whatever
-/// the spelling; false when either does not exist.
-fn same_file(a: &Path, b: &Path) -> bool {
-    same_file::is_same_file(a, b).unwrap_or(false)
+/// True when two handles are the same regular file (device and inode,
+/// whatever the path's spelling or hard link). A terminal or a pipe may be
+/// both read and written: only files are compared.
+fn same_regular_file(a: io::Result<same_file::Handle>, b: io::Result<same_file::Handle>) -> bool {
+    match (a, b) {
+        (Ok(a), Ok(b)) => a == b && a.as_file().metadata().is_ok_and(|m| m.is_file()),
+        _ => false,
+    }
 }
 
 /// Refuses an output file that is the input book (or, for a book read from
 /// standard input, the file standard input comes from).
 fn refuse_input_as_output(out: &Path, input: &Path) -> Result<()> {
-    let clash = if input.as_os_str() == "-" {
-        match (
-            same_file::Handle::stdin(),
-            same_file::Handle::from_path(out),
-        ) {
-            (Ok(a), Ok(b)) => a == b,
-            _ => false,
-        }
+    let book = if input.as_os_str() == "-" {
+        same_file::Handle::stdin()
     } else {
-        same_file(input, out)
+        same_file::Handle::from_path(input)
     };
+    let clash = same_regular_file(book, same_file::Handle::from_path(out));
     if clash && input.as_os_str() == "-" {
         bail!(
             "refusing to write {}: standard input reads the book from that file; choose another output path",
@@ -262,18 +261,16 @@ impl Output {
         let path = match path {
             Some(p) if p.as_os_str() != "-" => p,
             _ => {
-                if input.as_os_str() != "-" {
-                    if let (Ok(a), Ok(b)) = (
+                if input.as_os_str() != "-"
+                    && same_regular_file(
                         same_file::Handle::stdout(),
                         same_file::Handle::from_path(input),
-                    ) {
-                        if a == b {
-                            bail!(
-                                "refusing to write standard output: it is the input book {}",
-                                input.display()
-                            );
-                        }
-                    }
+                    )
+                {
+                    bail!(
+                        "refusing to write standard output: it is the input book {}",
+                        input.display()
+                    );
                 }
                 return Ok(Output {
                     sink: Sink::Stdout(BufWriter::with_capacity(BUF, io::stdout())),
