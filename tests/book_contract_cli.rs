@@ -245,4 +245,18 @@ fn issue8_a_non_finite_position_value_is_a_row_error() {
     );
     assert_eq!(rows[1][col(&h, "status")], "ok");
     assert_no_non_finite_ok_row(&h, &rows, 10);
+    // The failed row is kept out of every other file of the report.
+    for entry in fs::read_dir(&report).unwrap() {
+        let path = entry.unwrap().path();
+        if path.extension().is_some_and(|e| e == "csv") {
+            let (h, rows) = read_csv(&fs::read(&path).unwrap());
+            for r in rows {
+                for (name, v) in h.iter().zip(&r) {
+                    if let Ok(x) = v.parse::<f64>() {
+                        assert!(x.is_finite(), "{}: {name} = {v}", path.display());
+                    }
+                }
+            }
+        }
+    }
 }

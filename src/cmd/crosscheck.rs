@@ -192,6 +192,9 @@ pub fn run(args: Args) -> Result<ExitCode> {
         }
         out.push_f64(r.fourier_gap);
         out.push_str(&r.verdict);
+        if out.non_finite().is_some() {
+            return Ok(()); // the pipeline fails the row; keep it out of the summary
+        }
         let rel = if r.price_series > 0.0 {
             r.fourier_gap / r.price_series
         } else {

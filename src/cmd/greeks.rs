@@ -219,7 +219,7 @@ pub fn run(args: Args) -> Result<ExitCode> {
                 }
                 out.push_f64(a.price);
                 out.push_str(&flagged.join(" "));
-                if !flagged.is_empty() {
+                if !flagged.is_empty() && out.non_finite().is_none() {
                     flagged_rows.fetch_add(1, Ordering::Relaxed);
                 }
             }
