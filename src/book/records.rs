@@ -37,8 +37,8 @@ pub struct Record {
     /// `bytes` is the raw line: no field holds a quote, comma or line break.
     plain: bool,
     /// The line of a quote that was never closed (the record is cut at the
-    /// end of that line).
-    open_quote: Option<u64>,
+    /// end of that line), or 0.
+    open_quote: u64,
     /// Line breaks inside the record (in quoted fields).
     inner_breaks: u64,
 }
@@ -93,7 +93,7 @@ impl Record {
     /// record then holds that line only (see the module documentation).
     #[inline]
     pub fn open_quote(&self) -> Option<u64> {
-        self.open_quote
+        (self.open_quote > 0).then_some(self.open_quote)
     }
 
     /// Number of line breaks inside the record's quoted fields (0 for a
@@ -114,7 +114,7 @@ impl Record {
         self.bytes.clear();
         self.ends.clear();
         self.plain = false;
-        self.open_quote = None;
+        self.open_quote = 0;
         self.inner_breaks = 0;
     }
 }
@@ -323,16 +323,17 @@ impl<R: Read> RecordReader<R> {
     /// Only I/O errors of the underlying reader.
     pub fn read_record(&mut self, rec: &mut Record) -> std::io::Result<Option<u64>> {
         loop {
-            let line = self.read_one(rec)?;
-            if line.is_some() && rec.all_empty() && rec.open_quote.is_none() {
-                self.skipped += 1;
-                continue;
+            match self.read_one(rec)? {
+                Some((line, false)) => return Ok(Some(line)),
+                Some((_, true)) => self.skipped += 1,
+                None => return Ok(None),
             }
-            return Ok(line);
         }
     }
 
-    fn read_one(&mut self, rec: &mut Record) -> std::io::Result<Option<u64>> {
+    /// The next record and its line, and whether all its fields are empty.
+    #[inline(always)]
+    fn read_one(&mut self, rec: &mut Record) -> std::io::Result<Option<(u64, bool)>> {
         rec.clear();
         if !self.started {
             while self.end - self.pos < 3 && self.fill()? {}
@@ -404,10 +405,12 @@ impl<R: Read> RecordReader<R> {
             self.line += u64::from(next > stop);
             self.prev_cr = false;
             self.pos = next;
-            return Ok(Some(line));
+            // Only commas: every field is empty.
+            let empty = rec.ends.len() == body.len() + 1;
+            return Ok(Some((line, empty)));
         }
         self.read_general(rec)?;
-        Ok(Some(line))
+        Ok(Some((line, rec.all_empty() && rec.open_quote == 0)))
     }
 
     /// Adds the line breaks among the next `n` unread bytes (all `\r` or
@@ -434,7 +437,7 @@ impl<R: Read> RecordReader<R> {
                 nend = self.run_core(Some(scan.open_at + i), &mut cut)?;
                 scan = cut;
             }
-            rec.open_quote = Some(scan.open_line);
+            rec.open_quote = scan.open_line;
         }
         rec.inner_breaks = scan.last_data_line - start_line;
         self.line = scan.line;
