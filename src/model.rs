@@ -68,12 +68,36 @@ impl FromStr for OptionKind {
     }
 }
 
+/// A number as messages show it: the shortest text that reads back as the
+/// same `f64`, in positional form between 1e-4 and 1e16 (`0.25`, `-1`,
+/// `123456`) and in scientific form outside (`1e308`, `5e-324`, `2.5e-7`),
+/// so that no message spells out hundreds of digits.
+///
+/// ```
+/// use saltus::model::Short;
+/// assert_eq!(Short(1e308).to_string(), "1e308");
+/// assert_eq!(Short(-0.2).to_string(), "-0.2");
+/// ```
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub struct Short(pub f64);
+
+impl fmt::Display for Short {
+    fn fmt(&self, f: &mut fmt::Formatter<'_>) -> fmt::Result {
+        let a = self.0.abs();
+        if a == 0.0 || !a.is_finite() || (1e-4..1e16).contains(&a) {
+            write!(f, "{}", self.0)
+        } else {
+            write!(f, "{:e}", self.0)
+        }
+    }
+}
+
 /// Why a set of inputs was refused. Each variant names the field.
 #[derive(Debug, Clone, PartialEq, thiserror::Error)]
 #[non_exhaustive]
 pub enum ModelError {
     /// A field is NaN or infinite.
-    #[error("{field} is not a finite number ({value})")]
+    #[error("{field} is not a finite number ({})", Short(*.value))]
     NotFinite {
         /// Field name, as in the CSV schema.
         field: &'static str,
@@ -81,7 +105,7 @@ pub enum ModelError {
         value: f64,
     },
     /// A field that must be strictly positive is not.
-    #[error("{field} must be positive, got {value}")]
+    #[error("{field} must be positive, got {}", Short(*.value))]
     NotPositive {
         /// Field name, as in the CSV schema.
         field: &'static str,
@@ -89,7 +113,7 @@ pub enum ModelError {
         value: f64,
     },
     /// A field that must be non-negative is negative.
-    #[error("{field} must not be negative, got {value}")]
+    #[error("{field} must not be negative, got {}", Short(*.value))]
     Negative {
         /// Field name, as in the CSV schema.
         field: &'static str,
@@ -97,7 +121,7 @@ pub enum ModelError {
         value: f64,
     },
     /// A field is outside the range the engines are built and tested for.
-    #[error("{field} = {value} is outside the supported range ({range})")]
+    #[error("{field} = {} is outside the supported range ({range})", Short(*.value))]
     OutOfRange {
         /// Field name, as in the CSV schema.
         field: &'static str,
@@ -394,6 +418,46 @@ mod tests {
         )
         .unwrap_err();
         assert!(e.to_string().starts_with("spot is not a finite number"));
+    }
+
+    #[test]
+    fn issue8_messages_show_numbers_in_short_form() {
+        // 1e308 used to be written out as 309 digits.
+        let e = Contract::new(
+            OptionKind::Call,
+            100.0,
+            100.0,
+            1.0,
+            0.0,
+            0.0,
+            1e308,
+            jumps(),
+        )
+        .unwrap_err();
+        assert_eq!(
+            e.to_string(),
+            "vol = 1e308 is outside the supported range (0 to 10)"
+        );
+        let e =
+            Contract::new(OptionKind::Call, -5e-324, 1.0, 1.0, 0.0, 0.0, 0.2, jumps()).unwrap_err();
+        assert_eq!(e.to_string(), "spot must be positive, got -5e-324");
+        for (x, s) in [
+            (0.0, "0"),
+            (-1.0, "-1"),
+            (0.32, "0.32"),
+            (1e-4, "0.0001"),
+            (2.5e-7, "2.5e-7"),
+            (123456.5, "123456.5"),
+            (1e16, "1e16"),
+            (-1.7976931348623157e308, "-1.7976931348623157e308"),
+            (f64::INFINITY, "inf"),
+            (f64::NAN, "NaN"),
+        ] {
+            assert_eq!(Short(x).to_string(), s);
+            if x.is_finite() {
+                assert_eq!(s.parse::<f64>().unwrap(), x, "{s} reads back");
+            }
+        }
     }
 
     #[test]

@@ -1,6 +1,7 @@
 //! Integration tests, built as one binary. Each module checks one area
 //! against an outside reference named beside each check.
 
+mod book_contract_cli;
 mod common;
 mod crosscheck_cli;
 mod finite_diff;

@@ -11,8 +11,10 @@ pub mod pipeline;
 pub mod reader;
 pub mod records;
 pub mod schema;
+pub mod streams;
 pub mod writer;
 
 pub use pipeline::{run_book, BookSummary, PipelineOptions};
 pub use reader::{parse_row, BookRow, RowError};
 pub use schema::{Schema, SchemaError};
+pub use streams::StreamKeys;

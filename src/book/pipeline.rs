@@ -10,7 +10,7 @@
 use super::reader::{parse_row, BookRow, RowError};
 use super::records::{Record, RecordReader};
 use super::schema::{Schema, SchemaError};
-use super::writer::{write_field, RowWriter};
+use super::writer::{non_finite_message, write_field, RowWriter};
 use csv::ByteRecord;
 use std::io::{Read, Write};
 use std::sync::mpsc::sync_channel;
@@ -27,6 +27,9 @@ pub struct BookSummary {
     pub rows: u64,
     /// Rows whose status is not `ok`.
     pub failed: u64,
+    /// Records skipped because every field was empty (`,,,`), like blank
+    /// lines: not rows, not written.
+    pub skipped: u64,
     /// The first [`MAX_REPORTED_ERRORS`] failures, as `line N: problem`.
     pub first_errors: Vec<String>,
 }
@@ -67,8 +70,9 @@ struct Chunk {
 /// `process` receives each row that parsed and validated, and appends every
 /// result column except the last (`status`) through the [`RowWriter`]; it
 /// returns `Ok(())` or an error message. On error (or when the row did not
-/// parse) the pipeline discards any partial fields, writes empty result
-/// fields and a status `error: line N: problem`.
+/// parse, or a number it pushed is NaN or infinite) the pipeline discards
+/// any partial fields, writes empty result fields and a status
+/// `error: line N: problem`.
 ///
 /// # Errors
 /// [`BookError`] for a bad header (before anything is written) or an I/O failure.
@@ -88,7 +92,7 @@ where
     reader.read_record(&mut header_record)?;
     let headers: ByteRecord = header_record.iter().collect();
     let schema = Schema::from_headers(&headers)?;
-    let n_results = opts.result_columns.len();
+    let columns = &opts.result_columns[..];
 
     let mut out = csv::WriterBuilder::new().flexible(true).from_writer(output);
     let mut header_out = headers.clone();
@@ -198,7 +202,7 @@ where
                             .ok()
                             .and_then(|mut p| p.pop())
                             .unwrap_or_default();
-                        let result = process_chunk(&chunk, schema, n_results, process, buf);
+                        let result = process_chunk(&chunk, schema, columns, process, buf);
                         let _ = done_tx.send((idx, result));
                         let _ = recycle_tx.try_send(chunk.records);
                     });
@@ -210,7 +214,8 @@ where
             }
         });
         drop(done_tx);
-        let summary = writer.join().expect("writer thread panicked")?;
+        let mut summary = writer.join().expect("writer thread panicked")?;
+        summary.skipped = reader.skipped();
         if let Some(e) = input_error {
             return Err(e.into());
         }
@@ -229,7 +234,7 @@ struct ChunkResult {
 fn process_chunk<F>(
     chunk: &Chunk,
     schema: &Schema,
-    n_results: usize,
+    columns: &[String],
     process: &F,
     mut buf: Vec<u8>,
 ) -> ChunkResult
@@ -256,7 +261,18 @@ where
         }
         let echo = buf.len();
         let outcome = parse_row(schema, rec, row, *line).and_then(|r| {
-            process(&r, &mut RowWriter::new(&mut buf)).map_err(|message| RowError {
+            let mut w = RowWriter::new(&mut buf);
+            let done = process(&r, &mut w);
+            // The safety net under every command: no NaN or inf in an ok row.
+            let non_finite = w.non_finite();
+            done.and_then(|()| match non_finite {
+                None => Ok(()),
+                Some((i, v)) => Err(non_finite_message(
+                    columns.get(i).map_or("a result", String::as_str),
+                    v,
+                )),
+            })
+            .map_err(|message| RowError {
                 line: *line,
                 message,
             })
@@ -267,7 +283,7 @@ where
                 failed += 1;
                 buf.truncate(echo);
                 let mut w = RowWriter::new(&mut buf);
-                w.push_empty(n_results - 1);
+                w.push_empty(columns.len() - 1);
                 let msg = e.to_string();
                 w.push_str(&format!("error: {msg}"));
                 if errors.len() < MAX_REPORTED_ERRORS {
@@ -282,5 +298,44 @@ where
         rows: chunk.len as u64,
         failed,
         errors,
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn issue8_a_non_finite_result_fails_the_row_and_names_the_column() {
+        let book = format!(
+            "{},id\n{}\n{}\n",
+            super::super::schema::REQUIRED.join(","),
+            "call,100,100,1,0,0.2,0,0,0,a",
+            "call,100,100,1,0,0.2,0,0,0,b"
+        );
+        let opts = PipelineOptions {
+            result_columns: ["x", "y", "status"].map(String::from).to_vec(),
+        };
+        let mut out = Vec::new();
+        let summary = run_book(book.as_bytes(), &mut out, &opts, |row, w| {
+            w.push_f64(1.0);
+            // A processor that overflows on row b.
+            w.push_f64(if row.explicit_id() == Some("b") {
+                f64::MAX * 2.0
+            } else {
+                2.0
+            });
+            Ok(())
+        })
+        .unwrap();
+        let text = String::from_utf8(out).unwrap();
+        let lines: Vec<&str> = text.lines().collect();
+        assert_eq!(lines[1], "call,100,100,1,0,0.2,0,0,0,a,1.0,2.0,ok");
+        assert_eq!(
+            lines[2],
+            "call,100,100,1,0,0.2,0,0,0,b,,,error: line 3: y is not finite (inf): \
+             outside the range double precision can represent"
+        );
+        assert_eq!((summary.rows, summary.failed), (2, 1));
     }
 }

@@ -1,9 +1,14 @@
 //! Turning one CSV record into a validated position, or an error that names
 //! the line, the column and the problem.
+//!
+//! Numbers in messages are shown as written in the field, or in short form
+//! ([`Short`]); a value that is nearly right (`32%`, `1,000`, `0,32`) is
+//! still refused, with the fix in the message.
 
 use super::records::Record;
 use super::schema::Schema;
-use crate::model::{Contract, JumpParams, OptionKind};
+use crate::model::{Contract, JumpParams, OptionKind, Short};
+use crate::monte_carlo;
 use std::borrow::Cow;
 use std::fmt;
 
@@ -13,6 +18,10 @@ use std::fmt;
 pub struct BookRow<'a> {
     /// 1-based data row number (the header is row 0).
     pub row: u64,
+    /// 1-based line of the input where the record starts.
+    pub line: u64,
+    /// The record the row was read from.
+    record: &'a Record,
     /// The `id` column, if the book has one.
     id_field: Option<&'a str>,
     /// The `underlying` column (empty when absent), spaces trimmed.
@@ -35,12 +44,49 @@ pub struct RowError {
 }
 
 impl<'a> BookRow<'a> {
-    /// The `id` column, or the row number when the book has none.
+    /// The `id` column, or the row number when the book has none: the name
+    /// shown in summaries and reports (not what keys the random stream,
+    /// see [`BookRow::stream_key`]).
     pub fn id(&self) -> Cow<'a, str> {
         match self.id_field {
             Some(s) => Cow::Borrowed(s),
             None => Cow::Owned(self.row.to_string()),
         }
+    }
+
+    /// The `id` field when the book has one and it is not empty.
+    pub fn explicit_id(&self) -> Option<&'a str> {
+        self.id_field.filter(|s| !s.is_empty())
+    }
+
+    /// The key of this row's Monte Carlo stream under `seed`: derived from
+    /// the `id` field, or, when there is none or it is empty, from the
+    /// row's contents ([`BookRow::content_hash`]). It never depends on the
+    /// row's position, so splitting or reordering a book changes no result.
+    pub fn stream_key(&self, seed: u64) -> u64 {
+        match self.explicit_id() {
+            Some(id) => monte_carlo::stream_key(seed, id),
+            // The NUL keeps the name apart from any id a CSV would hold.
+            None => monte_carlo::stream_key(seed, &format!("\0row {:016x}", self.content_hash())),
+        }
+    }
+
+    /// A stable 64-bit hash (FNV-1a) of the record's fields as read, after
+    /// CSV unquoting, in column order, each preceded by its length: the same
+    /// for the same fields on any machine, whatever the row's position.
+    pub fn content_hash(&self) -> u64 {
+        let mut h: u64 = 0xcbf2_9ce4_8422_2325;
+        let mut eat = |bytes: &[u8]| {
+            for &b in bytes {
+                h ^= u64::from(b);
+                h = h.wrapping_mul(0x0000_0100_0000_01b3);
+            }
+        };
+        for field in self.record.iter() {
+            eat(&(field.len() as u64).to_le_bytes());
+            eat(field);
+        }
+        h
     }
 }
 
@@ -89,11 +135,69 @@ fn general_number(raw: &[u8], name: &str) -> Result<f64, String> {
     if raw.is_empty() {
         return Err(format!("{name} is missing"));
     }
-    fast_float2::parse::<f64, _>(raw).map_err(|_| {
-        // Control characters are shown escaped, never written raw.
-        let shown = String::from_utf8_lossy(raw);
-        format!("{name} is not a number: '{}'", shown.escape_debug())
-    })
+    // Control characters are shown escaped, never written raw.
+    let shown = || String::from_utf8_lossy(raw).escape_debug().to_string();
+    match fast_float2::parse::<f64, _>(raw) {
+        Ok(v) if v.is_infinite() && !raw.iter().any(|c| c.eq_ignore_ascii_case(&b'i')) => Err(
+            format!("{name} = {} is too large for double precision", shown()),
+        ),
+        Ok(v) => Ok(v),
+        Err(_) => Err(match number_hint(raw) {
+            Some(hint) => format!("{name} is not a number: '{}' ({hint})", shown()),
+            None => format!("{name} is not a number: '{}'", shown()),
+        }),
+    }
+}
+
+/// The fix for a value that is nearly a number: a percentage (`32%`:
+/// write 0.32), thousands separators (`1,000`, `1 000`, `1_000`,
+/// `1'000`: write 1000) or a decimal comma (`0,32`: write 0.32).
+fn number_hint(raw: &[u8]) -> Option<String> {
+    let t = std::str::from_utf8(raw).ok()?;
+    let parses = |s: &str| {
+        fast_float2::parse::<f64, _>(s)
+            .ok()
+            .filter(|v| v.is_finite())
+    };
+    if let Some(n) = t.strip_suffix('%') {
+        let n = n.trim_end();
+        let v = parses(n)?;
+        // Shifting the exponent keeps the division exact in decimal.
+        let v = parses(&format!("{n}e-2")).unwrap_or(v / 100.0);
+        return Some(format!("write {}", Short(v)));
+    }
+    let (sign, body) = match t.as_bytes().first() {
+        Some(b'-' | b'+') => t.split_at(1),
+        _ => ("", t),
+    };
+    let (int, frac) = match body.split_once('.') {
+        Some((i, f)) if !f.is_empty() && f.bytes().all(|c| c.is_ascii_digit()) => (i, Some(f)),
+        Some(_) => return None,
+        None => (body, None),
+    };
+    for sep in [',', ' ', '_', '\''] {
+        let groups: Vec<&str> = int.split(sep).collect();
+        if groups.len() < 2 {
+            continue;
+        }
+        let digits = |g: &str| !g.is_empty() && g.bytes().all(|c| c.is_ascii_digit());
+        let grouped = groups[0].len() <= 3
+            && groups.iter().all(|g| digits(g))
+            && groups[1..].iter().all(|g| g.len() == 3);
+        if grouped {
+            let joined: String = groups.concat();
+            let frac = frac.map(|f| format!(".{f}")).unwrap_or_default();
+            return Some(format!("write {sign}{joined}{frac} without separators"));
+        }
+        // One comma between digits and no point: a decimal comma.
+        if sep == ',' && groups.len() == 2 && frac.is_none() && groups.iter().all(|g| digits(g)) {
+            return Some(format!(
+                "write {sign}{}.{} with a decimal point",
+                groups[0], groups[1]
+            ));
+        }
+    }
+    None
 }
 
 /// Exact powers of ten representable in a double.
@@ -166,7 +270,7 @@ fn optional_number(
     if v.is_finite() {
         Ok(v)
     } else {
-        Err(format!("{name} is not a finite number ({v})"))
+        Err(format!("{name} is not a finite number ({})", Short(v)))
     }
 }
 
@@ -183,9 +287,22 @@ pub fn parse_row<'a>(
     line: u64,
 ) -> Result<BookRow<'a>, RowError> {
     let err = |message: String| RowError { line, message };
-    if rec.len() != schema.width {
+    if let Some(open) = rec.open_quote() {
         return Err(err(format!(
-            "malformed record: {} fields where the header has {}",
+            "malformed record: the quote opened on line {open} is never closed \
+             (the row is read up to the end of that line)"
+        )));
+    }
+    if rec.len() != schema.width {
+        let spans = match rec.inner_breaks() {
+            0 => String::new(),
+            n => format!(
+                " (a quoted field runs over lines {line} to {}: check for an unbalanced quote)",
+                line + n
+            ),
+        };
+        return Err(err(format!(
+            "malformed record: {} fields where the header has {}{spans}",
             rec.len(),
             schema.width
         )));
@@ -231,6 +348,8 @@ pub fn parse_row<'a>(
     };
     Ok(BookRow {
         row,
+        line,
+        record: rec,
         id_field,
         underlying,
         contract,
@@ -381,6 +500,109 @@ mod tests {
         assert!(e
             .to_string()
             .starts_with("line 9: malformed record: 2 fields"));
+    }
+
+    #[test]
+    fn issue8_nearly_numbers_are_refused_with_the_fix() {
+        let s = schema();
+        let line = |vol: &str| {
+            let r = rec(&["call", "100", "1", "1", "0", vol, "0", "0", "0"]);
+            parse_row(&s, &r, 1, 2).unwrap_err().message
+        };
+        assert_eq!(line("32%"), "vol is not a number: '32%' (write 0.32)");
+        assert_eq!(
+            line("12.5 %"),
+            "vol is not a number: '12.5 %' (write 0.125)"
+        );
+        assert_eq!(line("0.1%"), "vol is not a number: '0.1%' (write 0.001)");
+        assert_eq!(
+            line("1,000"),
+            "vol is not a number: '1,000' (write 1000 without separators)"
+        );
+        assert_eq!(
+            line("-1 234 567.5"),
+            "vol is not a number: '-1 234 567.5' (write -1234567.5 without separators)"
+        );
+        assert_eq!(
+            line("0,32"),
+            "vol is not a number: '0,32' (write 0.32 with a decimal point)"
+        );
+        assert_eq!(line("1,00,0"), "vol is not a number: '1,00,0'");
+        assert_eq!(line("abc%"), "vol is not a number: 'abc%'");
+        assert_eq!(
+            line("1e400"),
+            "vol = 1e400 is too large for double precision"
+        );
+        assert_eq!(
+            line("1e308"),
+            "vol = 1e308 is outside the supported range (0 to 10)"
+        );
+    }
+
+    #[test]
+    fn issue8_an_open_quote_names_its_line() {
+        let s = schema();
+        let text = format!(
+            "{}\ncall,1,1,1,0,\"0.2,0,0,0\nput,1,1,1,0,0.2,0,0,0\n",
+            crate::book::schema::REQUIRED.join(",")
+        );
+        let mut r = super::super::records::RecordReader::new(text.as_bytes());
+        let mut record = Record::default();
+        r.read_record(&mut record).unwrap();
+        let line = r.read_record(&mut record).unwrap().unwrap();
+        let e = parse_row(&s, &record, 1, line).unwrap_err();
+        assert_eq!(
+            e.to_string(),
+            "line 2: malformed record: the quote opened on line 2 is never closed \
+             (the row is read up to the end of that line)"
+        );
+        let line = r.read_record(&mut record).unwrap().unwrap();
+        assert_eq!(line, 3);
+        assert!(parse_row(&s, &record, 2, line).is_ok());
+        // A quote closed lines later: the count is wrong and the span named.
+        let text = format!(
+            "{}\ncall,1,\"1,1\n0,0.2\",0,0,0\n",
+            crate::book::schema::REQUIRED.join(",")
+        );
+        let mut r = super::super::records::RecordReader::new(text.as_bytes());
+        r.read_record(&mut record).unwrap();
+        let line = r.read_record(&mut record).unwrap().unwrap();
+        assert_eq!(
+            parse_row(&s, &record, 1, line).unwrap_err().to_string(),
+            "line 2: malformed record: 6 fields where the header has 9 \
+             (a quoted field runs over lines 2 to 3: check for an unbalanced quote)"
+        );
+    }
+
+    #[test]
+    fn issue8_the_stream_key_follows_the_contents_not_the_position() {
+        let s = schema();
+        let a = rec(&["call", "100", "90", "1", "0", "0.2", "0", "0", "0"]);
+        let b = rec(&["call", "100", "90", "1", "0", "0.2", "0", "0", "0.1"]);
+        let key = |r: &Record, row| parse_row(&s, r, row, row + 1).unwrap().stream_key(7);
+        assert_eq!(key(&a, 1), key(&a, 5000));
+        assert_ne!(key(&a, 1), key(&b, 1));
+        assert_ne!(
+            parse_row(&s, &a, 1, 2).unwrap().stream_key(8),
+            key(&a, 1),
+            "the seed matters"
+        );
+        // With an id column the id keys the stream; an empty id falls back
+        // to the contents.
+        let mut cols: Vec<&str> = crate::book::schema::REQUIRED.to_vec();
+        cols.push("id");
+        let s = Schema::from_headers(&csv::ByteRecord::from(cols)).unwrap();
+        let with_id = |id| rec(&["call", "100", "90", "1", "0", "0.2", "0", "0", "0", id]);
+        let (x, y) = (with_id("X"), with_id("X"));
+        let kx = parse_row(&s, &x, 1, 2).unwrap().stream_key(7);
+        assert_eq!(kx, crate::monte_carlo::stream_key(7, "X"));
+        assert_eq!(kx, parse_row(&s, &y, 9, 10).unwrap().stream_key(7));
+        let (e1, e2) = (with_id(""), with_id(" "));
+        let k1 = parse_row(&s, &e1, 1, 2).unwrap().stream_key(7);
+        let k2 = parse_row(&s, &e1, 3, 4).unwrap().stream_key(7);
+        assert_eq!(k1, k2);
+        assert_ne!(k1, crate::monte_carlo::stream_key(7, ""));
+        assert_ne!(k1, parse_row(&s, &e2, 1, 2).unwrap().stream_key(7));
     }
 
     #[test]

@@ -6,21 +6,36 @@
 /// Appends the result fields of one row to an output buffer. Every push
 /// writes the separating comma first, since result fields always follow the
 /// echoed input fields.
+///
+/// The writer counts the fields it appends and remembers the first
+/// non-finite number pushed and its field, so that the pipeline can refuse
+/// the row ([`RowWriter::non_finite`]): no `ok` row ever holds NaN or inf.
 pub struct RowWriter<'a> {
     buf: &'a mut Vec<u8>,
+    /// Fields appended so far.
+    fields: usize,
+    /// The first non-finite number: its field index and value.
+    non_finite: Option<(usize, f64)>,
 }
 
 impl<'a> RowWriter<'a> {
     /// Wraps a buffer positioned after the echoed input fields.
     pub fn new(buf: &'a mut Vec<u8>) -> Self {
-        RowWriter { buf }
+        RowWriter {
+            buf,
+            fields: 0,
+            non_finite: None,
+        }
     }
 
-    /// Appends a number in shortest round-trip form. Non-finite values, which
-    /// the engines do not produce, are written as `NaN` / `inf` so that they
-    /// can never pass unnoticed.
+    /// Appends a number in shortest round-trip form. A non-finite value is
+    /// written as `NaN` / `inf` and remembered (see [`RowWriter::non_finite`]).
     #[inline]
     pub fn push_f64(&mut self, x: f64) {
+        if !x.is_finite() && self.non_finite.is_none() {
+            self.non_finite = Some((self.fields, x));
+        }
+        self.fields += 1;
         self.buf.push(b',');
         let mut b = zmij::Buffer::new();
         self.buf.extend_from_slice(b.format(x).as_bytes());
@@ -29,6 +44,7 @@ impl<'a> RowWriter<'a> {
     /// Appends an integer.
     #[inline]
     pub fn push_u64(&mut self, x: u64) {
+        self.fields += 1;
         self.buf.push(b',');
         let mut b = itoa::Buffer::new();
         self.buf.extend_from_slice(b.format(x).as_bytes());
@@ -37,6 +53,7 @@ impl<'a> RowWriter<'a> {
     /// Appends a text field, quoted if needed.
     #[inline]
     pub fn push_str(&mut self, s: &str) {
+        self.fields += 1;
         self.buf.push(b',');
         write_field(self.buf, s.as_bytes());
     }
@@ -44,9 +61,32 @@ impl<'a> RowWriter<'a> {
     /// Appends `n` empty fields.
     #[inline]
     pub fn push_empty(&mut self, n: usize) {
+        self.fields += n;
         for _ in 0..n {
             self.buf.push(b',');
         }
+    }
+
+    /// The first non-finite number pushed with [`RowWriter::push_f64`], as
+    /// (index among the fields this writer appended, value). A processor
+    /// with side effects beyond its fields (totals, summaries) can check it
+    /// before recording the row, since the pipeline will fail such a row.
+    #[inline]
+    pub fn non_finite(&self) -> Option<(usize, f64)> {
+        self.non_finite
+    }
+}
+
+/// The message for a row whose result field `column` came out as `value`
+/// (NaN or infinite), e.g. `delta is not finite (inf): outside the range
+/// double precision can represent`.
+pub fn non_finite_message(column: &str, value: f64) -> String {
+    if value.is_nan() {
+        format!("{column} is not finite (NaN): the computation has no defined value in double precision")
+    } else {
+        format!(
+            "{column} is not finite ({value}): outside the range double precision can represent"
+        )
     }
 }
 
@@ -94,5 +134,23 @@ mod tests {
         }
         assert_eq!(&rec[7], "x,\"y\"");
         assert_eq!(&rec[8], "42");
+    }
+
+    #[test]
+    fn issue8_the_first_non_finite_number_and_its_field_are_remembered() {
+        let mut buf = Vec::new();
+        let mut w = RowWriter::new(&mut buf);
+        w.push_f64(1.0);
+        w.push_empty(2);
+        w.push_str("a");
+        w.push_u64(3);
+        assert_eq!(w.non_finite(), None);
+        w.push_f64(f64::NEG_INFINITY);
+        w.push_f64(f64::NAN);
+        assert_eq!(w.non_finite(), Some((5, f64::NEG_INFINITY)));
+        assert_eq!(
+            non_finite_message("delta", f64::INFINITY),
+            "delta is not finite (inf): outside the range double precision can represent"
+        );
     }
 }

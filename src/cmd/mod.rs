@@ -93,6 +93,12 @@ pub fn report_rows(summary: &BookSummary, verb: &str, seconds: f64) {
         "saltus: {ok} rows {verb}, {} rows failed, {} rows in {seconds:.3} s ({rate:.0} rows/s)",
         summary.failed, summary.rows
     );
+    if summary.skipped > 0 {
+        eprintln!(
+            "saltus: {} records with every field empty skipped like blank lines (not rows, not written)",
+            summary.skipped
+        );
+    }
 }
 
 /// Exit code from a summary: 1 when any row failed.

@@ -136,6 +136,9 @@ pub fn run(args: Args) -> Result<ExitCode> {
             w.push_f64(v);
         }
         w.push_f64(row.quantity * row.multiplier * g.price);
+        if w.non_finite().is_some() {
+            return Ok(()); // the pipeline fails the row; keep it out of the totals
+        }
         positions.lock().expect("positions lock").push(Position {
             row: row.row,
             id: row.id().into_owned(),
