@@ -931,12 +931,19 @@ fn mutate_structure(book: &mut Book, rng: &mut Rng, max_rows: usize) -> String {
             format!("record {b} field {j} = record {a} field {k}")
         }
         _ => {
-            // Many rows: the same record repeated.
+            // More rows: the same record repeated. Few for the slow
+            // commands (small `max_rows`), where a valid row may take
+            // seconds: the kill switch is per book and must not turn a slow
+            // but bounded row into a hang.
             let Some(r) = book.data_index(rng) else {
                 return "none".into();
             };
             let rec = book.records[r].clone();
-            let n = max_rows * (2 + rng.below(8));
+            let n = if max_rows <= 8 {
+                1 + rng.below(2)
+            } else {
+                max_rows.min(12) * (2 + rng.below(4))
+            };
             for _ in 0..n {
                 book.records.push(rec.clone());
             }
@@ -1268,7 +1275,7 @@ fn fuzz_greeks_fourier() {
         "greeks-fourier",
         "greeks --method both --engine fourier",
         50,
-        6,
+        4,
     );
 }
 
