@@ -138,6 +138,8 @@ struct InputRecord {
     fields: Vec<Vec<u8>>,
     /// 1-based line of its first byte.
     line: u64,
+    /// Its text holds a quote.
+    quoted: bool,
 }
 
 impl InputRecord {
@@ -166,19 +168,29 @@ fn input_records(book: &[u8]) -> Vec<InputRecord> {
         .flexible(true)
         .from_reader(book);
     let mut out = Vec::new();
+    let mut starts = Vec::new();
     for rec in r.byte_records() {
         let Ok(rec) = rec else { break };
-        let mut start = rec.position().map_or(0, |p| p.byte() as usize);
+        let read_from = rec.position().map_or(0, |p| p.byte() as usize);
+        let mut start = read_from;
         if start == 0 && book.starts_with(BOM) {
             start = BOM.len();
         }
         while start < book.len() && matches!(book[start], b'\r' | b'\n') {
             start += 1;
         }
+        starts.push((read_from, start));
         out.push(InputRecord {
             fields: rec.iter().map(<[u8]>::to_vec).collect(),
             line: 1 + line_breaks(&book[..start.min(book.len())]),
+            quoted: false,
         });
+    }
+    // A record's text runs to where the next read began.
+    for i in 0..out.len() {
+        let start = starts[i].1.min(book.len());
+        let end = starts.get(i + 1).map_or(book.len(), |s| s.0).max(start);
+        out[i].quoted = book[start..end].contains(&b'"');
     }
     out
 }
@@ -275,13 +287,15 @@ pub(crate) fn check(book: &[u8], cmd: &CommandLine, run: &Run, allow_fatal: bool
         }
         return v;
     }
-    // Exit 0 or 1. A record whose fields are all empty is a blank line.
-    let mut data = records.into_iter().filter(|r| !r.all_empty());
-    let Some(header) = data.next() else {
+    // Exit 0 or 1. A record whose fields are all empty is a blank line;
+    // one written with quotes (`""`, or a lone `"` left open) may be read
+    // either way, so it may or may not have a row.
+    let mut records = records.into_iter().skip_while(InputRecord::all_empty);
+    let Some(header) = records.next() else {
         v.push("exit 0/1 on a book without a header".into());
         return v;
     };
-    let data: Vec<InputRecord> = data.collect();
+    let data: Vec<InputRecord> = records.filter(|r| !r.all_empty() || r.quoted).collect();
     if cmd.is_risk() {
         match std::fs::read(run.report.join("positions.csv")) {
             Ok(bytes) => check_rows(&header, &data, &bytes, run.code, "positions.csv", &mut v),
@@ -341,24 +355,40 @@ fn check_rows(
         return;
     }
     let rows = &out[1..];
-    if rows.len() != data.len() {
+    // Pair records with rows. An optional record (all fields empty, with
+    // quotes) takes the next row only if that row echoes nothing and
+    // there are more rows left than records that must have one.
+    let echo_empty = |row: &Vec<Vec<u8>>| row.iter().take(width).all(Vec::is_empty);
+    let mut must: usize = data.iter().filter(|r| !r.all_empty()).count();
+    let mut pairs = Vec::new();
+    let mut k = 0;
+    for rec in data {
+        if rec.all_empty() {
+            let spare = rows.len().saturating_sub(k) > must;
+            if spare && rows.get(k).is_some_and(echo_empty) {
+                pairs.push((rec, &rows[k]));
+                k += 1;
+            }
+            continue;
+        }
+        must -= 1;
+        if let Some(row) = rows.get(k) {
+            pairs.push((rec, row));
+        }
+        k += 1;
+    }
+    let wanted = data.iter().filter(|r| !r.all_empty()).count();
+    if k != rows.len() {
         // Where the two first part ways.
-        let first = data
-            .iter()
-            .zip(rows)
-            .position(|(rec, row)| {
-                (0..width).any(|j| {
-                    row.get(j).map(Vec::as_slice) != Some(rec.fields.get(j).map_or(&b""[..], |f| f))
-                })
+        let first = pairs.iter().find(|(rec, row)| {
+            (0..width).any(|j| {
+                row.get(j).map(Vec::as_slice) != Some(rec.fields.get(j).map_or(&b""[..], |f| f))
             })
-            .unwrap_or(rows.len().min(data.len()));
-        let at = data
-            .get(first)
-            .map_or("the end".into(), |r| format!("line {}", r.line));
+        });
+        let at = first.map_or("the end".into(), |(r, _)| format!("line {}", r.line));
         v.push(format!(
-            "{what}: {} rows for {} input data records (blank and all-empty records excluded); first difference at {at}",
+            "{what}: {} rows for {wanted} input data records (blank and all-empty records excluded); first difference at {at}",
             rows.len(),
-            data.len()
         ));
         return;
     }
@@ -371,7 +401,7 @@ fn check_rows(
         }
     };
     let mut any_failed = None;
-    for (rec, row) in data.iter().zip(rows) {
+    for (rec, row) in pairs {
         let line = rec.line;
         if row.len() != n_cols {
             fault(
@@ -1316,4 +1346,68 @@ fn fuzz_oracle_reads_lines_and_blank_records_like_the_contract() {
     assert!(non_finite(b"disagree: z = NaN") && !non_finite(b"infinite") && !non_finite(b"1e308"));
     // A leading BOM in the output is kept as part of the first field.
     assert_eq!(output_records(b"\xef\xbb\xbfa,b\n")[0][0], b"\xef\xbb\xbfa");
+}
+
+/// The oracle on hand-made runs: a correct output passes, and each kind of
+/// fault is caught.
+#[test]
+fn fuzz_oracle_judges_hand_made_runs() {
+    const H: &str = "kind,spot,strike,expiry,rate,vol,jump_rate,jump_mean,jump_vol";
+    const R: &str = "call,100,100,1,0,0.2,0,0,0";
+    let judge = |book: &str, out: &str, code: i32| {
+        let run = Run {
+            code: Some(code),
+            timed_out: false,
+            stdout: out.as_bytes().to_vec(),
+            stderr: Vec::new(),
+            report: PathBuf::new(),
+        };
+        check(book.as_bytes(), &CommandLine::parse("price"), &run, false)
+    };
+    let book = format!("{H}\n{R}\n\n{R}\n");
+    let good = format!("{H},price,status\n{R},10.4,ok\n{R},10.4,ok\n");
+    assert_eq!(judge(&book, &good, 0), Vec::<String>::new());
+    // A wrong line number, a non-finite value, a missing row, exit 0 on a
+    // failed row, a changed echo.
+    for (out, code) in [
+        (
+            format!("{H},price,status\n{R},10.4,ok\n{R},,error: line 3: x\n"),
+            1,
+        ),
+        (format!("{H},price,status\n{R},10.4,ok\n{R},NaN,ok\n"), 0),
+        (format!("{H},price,status\n{R},10.4,ok\n"), 0),
+        (
+            format!("{H},price,status\n{R},10.4,ok\n{R},,error: line 4: x\n"),
+            0,
+        ),
+        (
+            format!("{H},price,status\n{R},10.4,ok\nput{},10.4,ok\n", &R[4..]),
+            0,
+        ),
+    ] {
+        assert_eq!(judge(&book, &out, code).len(), 1, "{out}");
+    }
+    // An all-empty record is a blank line: a row for it is one too many.
+    let book = format!("{H}\n{R}\n,,,\n");
+    let out = format!("{H},price,status\n{R},10.4,ok\n,,,,,,,,,,error: line 3: kind is missing\n");
+    assert_eq!(judge(&book, &out, 1).len(), 1);
+    assert!(judge(&book, &good[..good.len() - R.len() - 9], 0).is_empty());
+    // A quoted empty record, or a quote left open at the end, may have a row or not.
+    for tail in ["\"\"\n", "\""] {
+        let book = format!("{H}\n{R}\n{tail}");
+        let with = format!("{H},price,status\n{R},10.4,ok\n,,,,,,,,,,error: line 3: quote\n");
+        let without = format!("{H},price,status\n{R},10.4,ok\n");
+        assert_eq!(judge(&book, &with, 1), Vec::<String>::new(), "{tail}");
+        assert_eq!(judge(&book, &without, 0), Vec::<String>::new(), "{tail}");
+    }
+    // A long decimal expansion in a message, absent from the input.
+    let book = format!("{H}\ncall,100,100,1,1e308,0.2,0,0,0\n");
+    let out = format!(
+        "{H},price,status\ncall,100,100,1,1e308,0.2,0,0,0,,error: line 2: rate = 1{} is out\n",
+        "0".repeat(308)
+    );
+    assert_eq!(judge(&book, &out, 1).len(), 1);
+    // Exit 2 on a valid header is a fault; on a bad header it is not.
+    assert_eq!(judge(&format!("{H}\n{R}\n"), "", 2).len(), 1);
+    assert!(judge("kind,spot\ncall,1\n", "", 2).is_empty());
 }
