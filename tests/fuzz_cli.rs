@@ -1285,11 +1285,11 @@ fn assert_clean(failures: Vec<String>) {
 
 #[test]
 fn fuzz_price() {
-    let mut failures = campaign("price", "price", 160, 40);
+    let mut failures = campaign("price", "price", 400, 40);
     failures.extend(campaign(
         "price-bound",
         "price --with-bound --desk-units",
-        60,
+        150,
         40,
     ));
     assert_clean(failures);
@@ -1297,7 +1297,7 @@ fn fuzz_price() {
 
 #[test]
 fn fuzz_crosscheck() {
-    assert_clean(campaign("crosscheck", "crosscheck --paths 2000", 40, 5));
+    assert_clean(campaign("crosscheck", "crosscheck --paths 2000", 100, 5));
 }
 
 #[test]
@@ -1305,7 +1305,7 @@ fn fuzz_greeks_series() {
     assert_clean(campaign(
         "greeks-series",
         "greeks --method both --engine series",
-        120,
+        300,
         30,
     ));
 }
@@ -1315,7 +1315,7 @@ fn fuzz_greeks_fourier() {
     assert_clean(campaign(
         "greeks-fourier",
         "greeks --method both --engine fourier",
-        50,
+        100,
         4,
     ));
 }
@@ -1325,14 +1325,14 @@ fn fuzz_greeks_mc() {
     assert_clean(campaign(
         "greeks-mc",
         "greeks --method both --engine mc --paths 1000",
-        30,
+        80,
         5,
     ));
 }
 
 #[test]
 fn fuzz_risk() {
-    assert_clean(campaign("risk", "risk", 120, 30));
+    assert_clean(campaign("risk", "risk", 300, 30));
 }
 
 /// The oracle itself: rules that must hold on known-good and known-bad
