@@ -6,10 +6,13 @@ mod common;
 mod crosscheck_cli;
 mod finite_diff;
 mod fourier;
+mod fuzz_cli;
+mod fuzz_regressions;
 mod identities;
 mod monte_carlo;
 #[cfg(target_os = "linux")] // /dev/full, kill(1), ulimit
 mod output_safety_cli;
 mod price_cli;
+mod properties;
 mod reference;
 mod risk_cli;
