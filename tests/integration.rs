@@ -10,3 +10,4 @@ mod monte_carlo;
 mod price_cli;
 mod reference;
 mod risk_cli;
+mod series_domain;
