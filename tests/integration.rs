@@ -3,6 +3,7 @@
 
 mod common;
 mod crosscheck_cli;
+mod engine_limits_cli;
 mod finite_diff;
 mod fourier;
 mod identities;

@@ -211,8 +211,11 @@ pub fn run(args: Args) -> Result<ExitCode> {
                     out.push_f64(ga);
                     out.push_f64(gf);
                     out.push_f64(diff.abs());
-                    if ga != 0.0 {
-                        out.push_f64(diff.abs() / ga.abs());
+                    // (Empty when undefined or beyond double range, e.g. an
+                    // analytic Greek of 1e-319.)
+                    let rel = diff.abs() / ga.abs();
+                    if ga != 0.0 && rel.is_finite() {
+                        out.push_f64(rel);
                     } else {
                         out.push_empty(1);
                     }
