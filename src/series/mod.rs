@@ -566,7 +566,7 @@ pub fn price(c: &Contract) -> Result<SeriesResult, SeriesError> {
 
 /// Should this call be summed on the put's walk? See [`CALL_WALK_RATIO`].
 fn call_on_put_walk(st: &Setup, mu_a: f64, mu_b: f64) -> bool {
-    if !(mu_a > CALL_WALK_RATIO * mu_b.max(CALL_WALK_MIN_MEAN)) {
+    if mu_a <= CALL_WALK_RATIO * mu_b.max(CALL_WALK_MIN_MEAN) {
         return false;
     }
     if mu_a > CALL_WALK_MAX_MEAN {
