@@ -84,13 +84,25 @@ pub struct RowCheck {
     pub verdict: String,
 }
 
+/// Why a row could not be cross-checked.
+#[derive(Debug, Clone, PartialEq, thiserror::Error)]
+#[non_exhaustive]
+pub enum CheckError {
+    /// The series engine failed (overflow for inputs outside the supported range).
+    #[error(transparent)]
+    Series(#[from] series::SeriesError),
+    /// The Fourier quadrature ran out of its panel budget.
+    #[error(transparent)]
+    Fourier(#[from] fourier::FourierError),
+}
+
 /// Prices a contract with the three engines and compares them.
 ///
 /// # Errors
-/// Only if the series engine fails (it does not for validated contracts).
-pub fn check(c: &Contract, key: u64, cfg: &CheckConfig) -> Result<RowCheck, series::SeriesError> {
+/// [`CheckError`] when the series engine or the Fourier engine fails.
+pub fn check(c: &Contract, key: u64, cfg: &CheckConfig) -> Result<RowCheck, CheckError> {
     let s = series::price(c)?.greeks.price;
-    let f = fourier::price(c);
+    let f = fourier::price(c)?;
     let m = monte_carlo::price(c, key, &cfg.mc);
     let floor = ABS_FLOOR * c.spot;
     let tol = (cfg.fourier_rel_tol * s).max(floor);

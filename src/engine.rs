@@ -56,7 +56,7 @@ impl PricingEngine for FourierEngine {
         "fourier"
     }
     fn price(&self, c: &Contract) -> Result<Priced, String> {
-        let r = fourier::price(c);
+        let r = fourier::price(c).map_err(|e| e.to_string())?;
         Ok(Priced {
             price: r.price,
             error: r.error_estimate,

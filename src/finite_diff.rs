@@ -178,6 +178,40 @@ fn lower_edge(p: Param) -> Option<f64> {
     }
 }
 
+/// Smallest and largest relative bump the command line accepts
+/// (`--spot-bump`, `--vol-bump`): below 1e-10 the difference of two prices
+/// is mostly rounding (relative error about 1e-16 / h for a first and
+/// 1e-16 / h^2 for a second derivative), above 0.5 it no longer measures a
+/// derivative.
+pub const BUMP_RANGE: (f64, f64) = (1e-10, 0.5);
+
+/// Where the points of a difference formula lie.
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+enum Stencil {
+    /// `x - h, x, x + h`.
+    Central,
+    /// `x, x + h, x + 2h (, x + 3h)`: at the lower edge of the domain
+    /// (right-derivative, the analytic convention there).
+    Forward,
+    /// `x, x - h, x - 2h (, x - 3h)`: at the upper edge of the domain
+    /// (`expiry` 1000, `vol` 10, `jump_mean` 20, `lambda T` 1e5, ...), where the
+    /// price is smooth but a bumped copy would leave the validated domain.
+    Backward,
+}
+
+fn param_name(p: Param) -> &'static str {
+    match p {
+        Param::Spot => "spot",
+        Param::Vol => "vol",
+        Param::Expiry => "expiry",
+        Param::Rate => "rate",
+        Param::DivYield => "div_yield",
+        Param::JumpRate => "jump_rate",
+        Param::JumpMean => "jump_mean",
+        Param::JumpVol => "jump_vol",
+    }
+}
+
 struct Bumper<'a> {
     engine: &'a dyn PricingEngine,
     base: Contract,
@@ -203,33 +237,85 @@ impl Bumper<'_> {
         Ok(self.engine.price(&c)?.price)
     }
 
-    /// First derivative with step h: central, or one-sided second-order
-    /// `(-3 V0 + 4 V(h) - V(2h)) / 2h` at the domain edge.
-    fn first_h(&self, p: Param, h: f64) -> Result<f64, String> {
+    fn valid(&self, p: Param, x: f64) -> bool {
+        self.base.with(p, x).is_ok()
+    }
+
+    /// The stencil for a difference in `p` with step `h` and `points` points
+    /// beyond the base on the one-sided forms: central inside the domain,
+    /// forward within one step of the lower edge, backward where a step up
+    /// would leave the domain.
+    ///
+    /// # Errors
+    /// When the step is below the resolution of the value (the bumped value
+    /// equals the base) or no stencil fits in the domain.
+    fn stencil(&self, p: Param, h: f64, points: usize) -> Result<Stencil, String> {
         let x = self.base.get(p);
-        let central = lower_edge(p).is_none_or(|lo| x - h > lo);
-        if central {
-            Ok((self.at(p, x + h)? - self.at(p, x - h)?) / (2.0 * h))
+        if !(h.is_finite() && h > 0.0) || x + h == x || x - h == x {
+            return Err(format!(
+                "{} bump {h:e} is below the double-precision resolution of {} = {x:e}; \
+                 no finite difference possible",
+                param_name(p),
+                param_name(p)
+            ));
+        }
+        let reach = points as f64 * h;
+        let above_lower = lower_edge(p).is_none_or(|lo| x - h > lo);
+        if above_lower && self.valid(p, x - h) && self.valid(p, x + h) {
+            Ok(Stencil::Central)
+        } else if !above_lower || self.valid(p, x + reach) {
+            if self.valid(p, x + reach) {
+                Ok(Stencil::Forward)
+            } else {
+                Err(format!(
+                    "cannot bump {} by {h:e} inside the model's domain",
+                    param_name(p)
+                ))
+            }
+        } else if self.valid(p, x - reach) && lower_edge(p).is_none_or(|lo| x - reach > lo) {
+            Ok(Stencil::Backward)
         } else {
-            Ok(
-                (-3.0 * self.base_price + 4.0 * self.at(p, x + h)? - self.at(p, x + 2.0 * h)?)
-                    / (2.0 * h),
-            )
+            Err(format!(
+                "cannot bump {} by {h:e} inside the model's domain",
+                param_name(p)
+            ))
         }
     }
 
-    /// Second derivative with step h: central, or one-sided at the edge.
-    fn second_h(&self, p: Param, h: f64) -> Result<f64, String> {
+    /// First derivative with step h: central, or one-sided second-order
+    /// `(-3 V0 + 4 V(x+h) - V(x+2h)) / 2h` (with `h` negated for backward).
+    fn first_h(&self, p: Param, h: f64, st: Stencil) -> Result<f64, String> {
         let x = self.base.get(p);
-        let central = lower_edge(p).is_none_or(|lo| x - h > lo);
-        if central {
-            Ok((self.at(p, x + h)? - 2.0 * self.base_price + self.at(p, x - h)?) / (h * h))
-        } else {
-            // (2 V0 - 5 V1 + 4 V2 - V3) / h^2, second-order accurate.
-            Ok((2.0 * self.base_price - 5.0 * self.at(p, x + h)?
-                + 4.0 * self.at(p, x + 2.0 * h)?
-                - self.at(p, x + 3.0 * h)?)
-                / (h * h))
+        match st {
+            Stencil::Central => Ok((self.at(p, x + h)? - self.at(p, x - h)?) / (2.0 * h)),
+            Stencil::Forward | Stencil::Backward => {
+                let s = if st == Stencil::Forward { h } else { -h };
+                Ok(
+                    (-3.0 * self.base_price + 4.0 * self.at(p, x + s)?
+                        - self.at(p, x + 2.0 * s)?)
+                        / (2.0 * s),
+                )
+            }
+        }
+    }
+
+    /// Second derivative with step h: central, or one-sided
+    /// `(2 V0 - 5 V1 + 4 V2 - V3) / h^2` (second-order accurate). Divided by
+    /// `h` twice so that a tiny `h` does not underflow `h^2`.
+    fn second_h(&self, p: Param, h: f64, st: Stencil) -> Result<f64, String> {
+        let x = self.base.get(p);
+        match st {
+            Stencil::Central => {
+                Ok((self.at(p, x + h)? - 2.0 * self.base_price + self.at(p, x - h)?) / h / h)
+            }
+            Stencil::Forward | Stencil::Backward => {
+                let s = if st == Stencil::Forward { h } else { -h };
+                Ok((2.0 * self.base_price - 5.0 * self.at(p, x + s)?
+                    + 4.0 * self.at(p, x + 2.0 * s)?
+                    - self.at(p, x + 3.0 * s)?)
+                    / h
+                    / h)
+            }
         }
     }
 
@@ -271,8 +357,16 @@ pub fn greeks(
     };
     let r = cfg.richardson;
     let h = |p: Param| cfg.bumps.step(p, c);
-    let d1 = |p: Param| b.extrapolate(|hh| b.first_h(p, hh), h(p), r);
-    let d2 = |p: Param| b.extrapolate(|hh| b.second_h(p, hh), h(p), r);
+    // The stencil is chosen once for the coarse step and used for both
+    // Richardson steps (the same leading error term then cancels).
+    let d1 = |p: Param| {
+        let st = b.stencil(p, h(p), 2)?;
+        b.extrapolate(|hh| b.first_h(p, hh, st), h(p), r)
+    };
+    let d2 = |p: Param| {
+        let st = b.stencil(p, h(p), 3)?;
+        b.extrapolate(|hh| b.second_h(p, hh, st), h(p), r)
+    };
     let n1 = |p: Param| 4.0 * b.error / h(p);
     let n2 = |p: Param| 4.0 * b.error / (h(p) * h(p));
 
@@ -286,25 +380,32 @@ pub fn greeks(
     let vanna = if zero_expiry {
         0.0
     } else {
+        // d/dsigma of the central spot difference, on the vol stencil.
+        b.stencil(Param::Spot, hs, 1)?;
+        let vol_stencil = b.stencil(Param::Vol, hv, 2)?;
         let mixed = |k: f64| -> Result<f64, String> {
             let (s, v) = (c.spot, c.vol);
             let (s_up, s_dn) = (s + k * hs, s - k * hs);
-            if v - k * hv > 0.0 {
-                Ok((b.at2(Param::Spot, s_up, Param::Vol, v + k * hv)?
-                    - b.at2(Param::Spot, s_up, Param::Vol, v - k * hv)?
-                    - b.at2(Param::Spot, s_dn, Param::Vol, v + k * hv)?
-                    + b.at2(Param::Spot, s_dn, Param::Vol, v - k * hv)?)
-                    / (4.0 * k * k * hs * hv))
-            } else {
-                // One-sided in vol: delta at sigma + h minus delta at sigma.
-                let delta_at = |vv: f64| -> Result<f64, String> {
-                    Ok((b.at2(Param::Spot, s_up, Param::Vol, vv)?
-                        - b.at2(Param::Spot, s_dn, Param::Vol, vv)?)
-                        / (2.0 * k * hs))
-                };
-                Ok((-3.0 * delta_at(v)? + 4.0 * delta_at(v + k * hv)?
-                    - delta_at(v + 2.0 * k * hv)?)
-                    / (2.0 * k * hv))
+            let delta_at = |vv: f64| -> Result<f64, String> {
+                Ok((b.at2(Param::Spot, s_up, Param::Vol, vv)?
+                    - b.at2(Param::Spot, s_dn, Param::Vol, vv)?)
+                    / (2.0 * k * hs))
+            };
+            match vol_stencil {
+                Stencil::Central => {
+                    Ok((delta_at(v + k * hv)? - delta_at(v - k * hv)?) / (2.0 * k * hv))
+                }
+                Stencil::Forward | Stencil::Backward => {
+                    let sh = if vol_stencil == Stencil::Forward {
+                        k * hv
+                    } else {
+                        -k * hv
+                    };
+                    Ok(
+                        (-3.0 * delta_at(v)? + 4.0 * delta_at(v + sh)? - delta_at(v + 2.0 * sh)?)
+                            / (2.0 * sh),
+                    )
+                }
             }
         };
         if r {
@@ -341,5 +442,20 @@ pub fn greeks(
         vanna: 4.0 * b.error / (hs * hv),
         volga: n2(Param::Vol),
     };
+    // A non-finite difference is a row error, never a value (e.g. a Greek
+    // that overflows for spot 1e-308).
+    let named = greeks
+        .sensitivities()
+        .into_iter()
+        .zip(crate::greeks::SENSITIVITY_NAMES)
+        .chain([(greeks.price, "price")]);
+    for (v, name) in named {
+        if !v.is_finite() {
+            return Err(format!(
+                "finite-difference {name} is not a finite number ({v}): the difference \
+                 overflows double precision for this row"
+            ));
+        }
+    }
     Ok(FdGreeks { greeks, noise })
 }

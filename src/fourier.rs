@@ -41,6 +41,40 @@ pub const FOURIER_ABS_TOL_RANGE: (f64, f64) = (1e-16, 1e-13);
 pub const FOURIER_MAX_U: f64 = 1e5;
 /// Bisection depth limit per initial panel.
 const MAX_DEPTH: u32 = 10;
+/// Most quadrature panels per price (each one 72 integrand evaluations:
+/// 24-point Gauss-Legendre on the panel and on its halves). Ordinary rows
+/// need a few dozen to a few hundred; the budget bounds the work of any row
+/// (about 1.4 million evaluations, a fraction of a second) and a row that
+/// exhausts it before reaching the tolerance is reported as not converged.
+pub const FOURIER_MAX_PANELS: usize = 20_000;
+
+/// The Fourier engine could not reach its tolerance.
+#[derive(Debug, Clone, PartialEq, thiserror::Error)]
+#[non_exhaustive]
+pub enum FourierError {
+    /// The panel budget ([`FOURIER_MAX_PANELS`]) ran out first.
+    #[error(
+        "fourier quadrature did not reach tolerance within {panels} panels \
+         (error estimate {estimate:.1e}, tolerance {tolerance:.1e})"
+    )]
+    NotConverged {
+        /// Panels integrated.
+        panels: usize,
+        /// Error estimate reached, price units.
+        estimate: f64,
+        /// Tolerance, price units.
+        tolerance: f64,
+    },
+    /// The integral or its error estimate is not a finite number (inputs
+    /// whose scale is outside double precision).
+    #[error("fourier result is not a finite number (price {price}, error estimate {estimate}); this row is outside the supported range")]
+    NotFinite {
+        /// Price reached.
+        price: f64,
+        /// Error estimate reached.
+        estimate: f64,
+    },
+}
 
 /// A Fourier price and its estimated absolute error.
 #[derive(Debug, Clone, Copy, PartialEq)]
@@ -106,18 +140,22 @@ impl Integrand {
 /// use saltus::model::{Contract, JumpParams, OptionKind};
 /// let c = Contract::new(OptionKind::Call, 100.0, 100.0, 0.25, 0.05, 0.0, 0.15,
 ///     JumpParams { rate: 0.1, mean: -0.9, vol: 0.45 }).unwrap();
-/// let f = saltus::fourier::price(&c);
+/// let f = saltus::fourier::price(&c).unwrap();
 /// let s = saltus::series::price(&c).unwrap().greeks.price;
 /// assert!((f.price - s).abs() < 1e-10 * s);
 /// ```
-pub fn price(c: &Contract) -> FourierResult {
+///
+/// # Errors
+/// [`FourierError::NotConverged`] when the quadrature does not reach its
+/// tolerance within [`FOURIER_MAX_PANELS`] panels.
+pub fn price(c: &Contract) -> Result<FourierResult, FourierError> {
     let t = c.expiry;
     if t == 0.0 {
-        return FourierResult {
+        return Ok(FourierResult {
             price: c.kind.payoff(c.spot, c.strike),
             error_estimate: 0.0,
             evaluations: 0,
-        };
+        });
     }
     let j = &c.jumps;
     let k = j.k();
@@ -125,15 +163,21 @@ pub fn price(c: &Contract) -> FourierResult {
     let s2 = c.vol * c.vol + j.rate * (j.mean * j.mean + j.vol * j.vol);
     let fwd = c.forward();
     let disc = (-c.rate * t).exp();
-    let kappa = (c.strike / fwd).ln();
+    // ln(K/F), also when K/F itself over- or underflows (spot 1e-308).
+    let ratio = c.strike / fwd;
+    let kappa = if ratio.is_normal() {
+        ratio.ln()
+    } else {
+        c.strike.ln() - fwd.ln()
+    };
     let control = black_scholes::price(c.kind, c.spot, c.strike, t, c.rate, c.div_yield, s2.sqrt());
     if lam_t == 0.0 || s2 == c.vol * c.vol {
         // No jumps (or jumps of size exactly 1): the control is the answer.
-        return FourierResult {
+        return Ok(FourierResult {
             price: control,
             error_estimate: 0.0,
             evaluations: 0,
-        };
+        });
     }
     let f = Integrand {
         kappa,
@@ -147,7 +191,18 @@ pub fn price(c: &Contract) -> FourierResult {
     };
     let scale = disc * fwd * (0.5 * kappa).exp() / PI;
     let (lo, hi) = FOURIER_ABS_TOL_RANGE;
-    let tol_price = (FOURIER_REL_TOL * control).clamp(lo * disc * fwd, hi * disc * fwd);
+    // Rounding: |phi(u - i/2)| <= 1, so the integral's terms are bounded by
+    // 1/(u^2 + 1/4), whose integral is pi; allow two ulps of each part.
+    let rounding = 2.0 * f64::EPSILON * (control.abs() + scale * PI);
+    // Never ask for less than the rounding level: far from the money (strike
+    // 1e300 on spot 100, spot 1e-300) the relative target is far below it and
+    // no amount of bisection reaches it. The phase u kappa carries an
+    // absolute rounding error of about eps u |kappa|, which is what limits
+    // the integral there (the 12 is ln(1 + 4 U^2) / 2 for U up to 1e5).
+    let rounding_floor = 2.0 * f64::EPSILON * (control.abs() + scale * (PI + 12.0 * kappa.abs()));
+    let tol_price = (FOURIER_REL_TOL * control)
+        .clamp(lo * disc * fwd, hi * disc * fwd)
+        .max(rounding_floor);
     let tol = tol_price / scale.max(f64::MIN_POSITIVE);
 
     // Integration limit: |phi(u - i/2)| <= exp(-sigma^2 T u^2 / 2) C0 with
@@ -184,58 +239,86 @@ pub fn price(c: &Contract) -> FourierResult {
     let n_panels = ((upper / width).ceil() as usize).clamp(4, 4096);
     let h = upper / n_panels as f64;
     let gl = rule();
-    let mut evaluations = 0usize;
+    let mut quad = Quadrature {
+        gl,
+        f: &f,
+        evaluations: 0,
+        panels: 0,
+        exhausted: false,
+    };
     let mut integral = 0.0;
     let mut err = 0.0;
     for i in 0..n_panels {
         let (a, b) = (i as f64 * h, (i + 1) as f64 * h);
-        let (val, e) = adaptive(
-            gl,
-            &f,
-            a,
-            b,
-            tol * (b - a) / upper,
-            MAX_DEPTH,
-            &mut evaluations,
-        );
+        let (val, e) = quad.adaptive(a, b, tol * (b - a) / upper, MAX_DEPTH);
         integral += val;
         err += e;
     }
+    let error_estimate = scale * (err + tail_bound) + rounding;
     let price = control - scale * integral;
-    // Rounding: |phi(u - i/2)| <= 1, so the integral's terms are bounded by
-    // 1/(u^2 + 1/4), whose integral is pi; allow two ulps of each part.
-    let rounding = 2.0 * f64::EPSILON * (control.abs() + scale * PI);
-    FourierResult {
-        price: price.max(0.0),
-        error_estimate: scale * (err + tail_bound) + rounding,
-        evaluations,
+    if !(price.is_finite() && error_estimate.is_finite()) {
+        return Err(FourierError::NotFinite {
+            price,
+            estimate: error_estimate,
+        });
     }
+    if quad.exhausted && err > tol {
+        return Err(FourierError::NotConverged {
+            panels: quad.panels,
+            estimate: error_estimate,
+            tolerance: tol_price,
+        });
+    }
+    Ok(FourierResult {
+        price: price.max(0.0),
+        error_estimate,
+        evaluations: quad.evaluations,
+    })
 }
 
-fn adaptive(
-    gl: &GaussLegendre,
-    f: &Integrand,
-    a: f64,
-    b: f64,
-    tol: f64,
-    depth: u32,
-    evals: &mut usize,
-) -> (f64, f64) {
-    let whole = gl.integrate(a, b, |u| f.eval(u));
-    let m = 0.5 * (a + b);
-    let left = gl.integrate(a, m, |u| f.eval(u));
-    let right = gl.integrate(m, b, |u| f.eval(u));
-    *evals += 72;
-    let halves = left + right;
-    let e = (whole - halves).abs();
-    // Below ~100 ulps of the panel's value the difference is rounding noise.
-    let noise = 1e-14 * (left.abs() + right.abs());
-    if e <= tol.max(noise) || depth == 0 {
-        return (halves, e);
+/// Adaptive Gauss-Legendre with a panel budget shared by the whole integral.
+struct Quadrature<'a> {
+    gl: &'a GaussLegendre,
+    f: &'a Integrand,
+    evaluations: usize,
+    panels: usize,
+    /// Set when a panel wanted bisecting but the budget was spent.
+    exhausted: bool,
+}
+
+impl Quadrature<'_> {
+    /// Integral over `[a, b]` and its error estimate, bisecting while the
+    /// estimate exceeds `tol`, `depth` allows and the budget lasts. Panels are
+    /// visited left to right, so the result does not depend on anything but
+    /// the contract.
+    fn adaptive(&mut self, a: f64, b: f64, tol: f64, depth: u32) -> (f64, f64) {
+        let (gl, f) = (self.gl, self.f);
+        let whole = gl.integrate(a, b, |u| f.eval(u));
+        let m = 0.5 * (a + b);
+        let left = gl.integrate(a, m, |u| f.eval(u));
+        let right = gl.integrate(m, b, |u| f.eval(u));
+        self.evaluations += 72;
+        self.panels += 1;
+        let halves = left + right;
+        let e = (whole - halves).abs();
+        // Below ~100 ulps of the panel's value, or a few ulps of the largest
+        // the integrand can be on the panel (|f(u)| <= 2 / (u^2 + 1/4), as
+        // |phi(u - i/2)| <= 1) times the rounding of the phase u kappa, the
+        // difference is rounding noise: an oscillating integrand (far from
+        // the money) cancels within a panel.
+        let noise = 1e-14 * (left.abs() + right.abs())
+            + 8.0 * f64::EPSILON * (1.0 + b * f.kappa.abs()) * (b - a) / (a * a + 0.25);
+        if e <= tol.max(noise) || depth == 0 {
+            return (halves, e);
+        }
+        if self.panels + 2 > FOURIER_MAX_PANELS {
+            self.exhausted = true;
+            return (halves, e);
+        }
+        let (l, el) = self.adaptive(a, m, 0.5 * tol, depth - 1);
+        let (r, er) = self.adaptive(m, b, 0.5 * tol, depth - 1);
+        (l + r, el + er)
     }
-    let (l, el) = adaptive(gl, f, a, m, 0.5 * tol, depth - 1, evals);
-    let (r, er) = adaptive(gl, f, m, b, 0.5 * tol, depth - 1, evals);
-    (l + r, el + er)
 }
 
 #[cfg(test)]
@@ -264,7 +347,7 @@ mod tests {
             },
         )
         .unwrap();
-        let f = price(&c);
+        let f = price(&c).unwrap();
         let s = crate::series::price(&c).unwrap().greeks.price;
         assert!((f.price - s).abs() < 1e-10 * s, "{} vs {}", f.price, s);
         assert!(f.error_estimate < 1e-10 * s);

@@ -37,6 +37,14 @@ use std::time::Instant;
 
 /// Antithetic pairs per block (the unit of parallel work and of streams).
 pub const BLOCK_PAIRS: u64 = 8192;
+/// Most paths per row, for a fixed number of paths and for the cap of the
+/// target-standard-error modes (2^30, about a minute per row on one core).
+pub const MAX_PATHS: u64 = 1 << 30;
+/// Range of a fixed jump-intensity multiplier `gamma` (the pilot's
+/// candidates span 0.25 to 40).
+pub const GAMMA_RANGE: (f64, f64) = (1e-3, 1e3);
+/// Largest `|jump_mean_shift|` (the model's own bound on `|mu_J|`).
+pub const MAX_JUMP_MEAN_SHIFT: f64 = crate::model::MAX_LOG_JUMP;
 /// Stream reserved for the pilot run that chooses the intensity multiplier.
 const PILOT_STREAM: u64 = u64::MAX;
 /// Pairs in the pilot run.
@@ -99,6 +107,53 @@ pub struct McConfig {
     /// the same jump counts (common random numbers) and a change of `lambda`
     /// or `T` only changes the likelihood weights, smoothly.
     pub sampling_count_mean: Option<f64>,
+}
+
+impl McConfig {
+    /// Checks the settings against the documented ranges ([`MAX_PATHS`],
+    /// [`GAMMA_RANGE`], [`MAX_JUMP_MEAN_SHIFT`]), so that no setting can make
+    /// [`price`] run away or fail.
+    ///
+    /// # Errors
+    /// A message naming the field and the accepted range.
+    pub fn validate(&self) -> Result<(), String> {
+        let in_range = |x: f64, lo: f64, hi: f64| x.is_finite() && x >= lo && x <= hi;
+        match self.work {
+            Work::Paths(p) if !(2..=MAX_PATHS).contains(&p) => {
+                return Err(format!("paths must be between 2 and {MAX_PATHS}, got {p}"));
+            }
+            Work::AbsoluteSe(x) | Work::RelativeSe(x) if !(x.is_finite() && x > 0.0) => {
+                return Err(format!("target standard error must be positive, got {x}"));
+            }
+            _ => {}
+        }
+        if !(2..=MAX_PATHS).contains(&self.max_paths) {
+            return Err(format!(
+                "max paths must be between 2 and {MAX_PATHS}, got {}",
+                self.max_paths
+            ));
+        }
+        if let IntensityChoice::Fixed(g) = self.intensity {
+            let (lo, hi) = GAMMA_RANGE;
+            if !in_range(g, lo, hi) {
+                return Err(format!("gamma must be between {lo:e} and {hi:e}, got {g}"));
+            }
+        }
+        let shift = self.jump_mean_shift;
+        if !in_range(shift, -MAX_JUMP_MEAN_SHIFT, MAX_JUMP_MEAN_SHIFT) {
+            return Err(format!(
+                "jump mean shift must be between -{MAX_JUMP_MEAN_SHIFT} and {MAX_JUMP_MEAN_SHIFT}, got {shift}"
+            ));
+        }
+        if let Some(m) = self.sampling_count_mean {
+            if !in_range(m, 0.0, 1e12) {
+                return Err(format!(
+                    "sampling mean jump count must be between 0 and 1e12, got {m}"
+                ));
+            }
+        }
+        Ok(())
+    }
 }
 
 impl Default for McConfig {
@@ -210,22 +265,26 @@ impl MertonSampler {
     /// `sample_rate` and sampling jump mean `sample_mean`.
     pub fn new(c: &Contract, dt: f64, sample_rate: f64, sample_mean: f64) -> Self {
         let mean = sample_rate * dt;
+        let poisson_large = if mean > INVERSION_MAX_MEAN {
+            rand_distr::Poisson::new(mean).ok()
+        } else {
+            None
+        };
         MertonSampler {
             sigma_sqrt_dt: c.vol * dt.sqrt(),
             drift_dt: (c.rate - c.div_yield - c.jumps.rate * c.jumps.k() - 0.5 * c.vol * c.vol)
                 * dt,
             jump_vol: c.jumps.vol,
             sample_mean,
-            poisson_large: if mean > INVERSION_MAX_MEAN {
-                rand_distr::Poisson::new(mean).ok()
-            } else {
-                None
-            },
-            cdf: if mean <= INVERSION_MAX_MEAN {
+            // (A table whenever there is no large-mean sampler, so the draw
+            // never indexes an empty table; `McConfig::validate` keeps the
+            // mean in the large sampler's range.)
+            cdf: if poisson_large.is_none() {
                 poisson_cdf_table(mean)
             } else {
                 Vec::new()
             },
+            poisson_large,
             sqrt_n: (0..TABLE_N).map(|n| (n as f64).sqrt()).collect(),
         }
     }

@@ -4,6 +4,7 @@
 mod book_contract_cli;
 mod common;
 mod crosscheck_cli;
+mod engine_limits_cli;
 mod finite_diff;
 mod fourier;
 mod fuzz_cli;
@@ -16,3 +17,4 @@ mod price_cli;
 mod properties;
 mod reference;
 mod risk_cli;
+mod series_domain;

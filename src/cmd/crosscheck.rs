@@ -7,7 +7,9 @@ use anyhow::{bail, Result};
 use indicatif::{ProgressBar, ProgressStyle};
 use saltus::book::{run_book, PipelineOptions, StreamKeys};
 use saltus::crosscheck::{check, CheckConfig, CheckSummary, Outcome, SummaryRecord};
-use saltus::monte_carlo::{IntensityChoice, McConfig, Work};
+use saltus::monte_carlo::{
+    IntensityChoice, McConfig, Work, GAMMA_RANGE, MAX_JUMP_MEAN_SHIFT, MAX_PATHS,
+};
 use std::io::IsTerminal;
 use std::path::PathBuf;
 use std::process::ExitCode;
@@ -114,8 +116,10 @@ fn parse_target(s: &str) -> Result<Work> {
         None => (t, false),
     };
     let x: f64 = match num.parse() {
-        Ok(x) if x > 0.0 && f64::is_finite(x) => x,
-        _ => bail!("--target-se must be a positive number, optionally with %, got '{s}'"),
+        Ok(x) if x > 0.0 && f64::is_finite(x) && (!rel || x <= 100.0) => x,
+        _ => bail!(
+            "--target-se must be a positive number, or a percentage above 0% and at most 100%, got '{s}'"
+        ),
     };
     Ok(if rel {
         Work::RelativeSe(x / 100.0)
@@ -124,37 +128,71 @@ fn parse_target(s: &str) -> Result<Work> {
     })
 }
 
-/// Turns the raw flags into a validated configuration.
+/// Largest accepted `--z-max`.
+const MAX_Z: f64 = 100.0;
+
+/// Turns the raw flags into a validated configuration: every numeric option
+/// is checked against its documented range here, before any work, so no
+/// option value can reach an engine it would break.
 fn config(args: &Args) -> Result<CheckConfig> {
     let work = match &args.target_se {
         Some(t) => parse_target(t)?,
         None => {
-            if args.paths < 2 {
-                bail!("--paths must be at least 2");
+            if !(2..=MAX_PATHS).contains(&args.paths) {
+                bail!(
+                    "--paths must be between 2 and {MAX_PATHS}, got {}",
+                    args.paths
+                );
             }
             Work::Paths(args.paths)
         }
     };
+    if !(2..=MAX_PATHS).contains(&args.max_paths) {
+        bail!(
+            "--max-paths must be between 2 and {MAX_PATHS}, got {}",
+            args.max_paths
+        );
+    }
+    let (g_lo, g_hi) = GAMMA_RANGE;
     let intensity = match args.gamma {
         None => IntensityChoice::Auto,
-        Some(g) if g > 0.0 && g.is_finite() => IntensityChoice::Fixed(g),
-        Some(g) => bail!("--gamma must be a positive number, got {g}"),
+        Some(g) if g.is_finite() && (g_lo..=g_hi).contains(&g) => IntensityChoice::Fixed(g),
+        Some(g) => bail!("--gamma must be between {g_lo:e} and {g_hi:e}, got {g}"),
     };
-    let positive = |x: f64| x > 0.0 && x.is_finite();
-    if !positive(args.z_max) || !positive(args.fourier_tol) {
-        bail!("--z-max and --fourier-tol must be positive");
+    let shift = args.jump_mean_shift;
+    if !(shift.is_finite() && shift.abs() <= MAX_JUMP_MEAN_SHIFT) {
+        bail!(
+            "--jump-mean-shift must be between -{MAX_JUMP_MEAN_SHIFT} and {MAX_JUMP_MEAN_SHIFT}, got {shift}"
+        );
+    }
+    if !(args.z_max.is_finite() && args.z_max > 0.0 && args.z_max <= MAX_Z) {
+        bail!(
+            "--z-max must be a positive number up to {MAX_Z}, got {}",
+            args.z_max
+        );
+    }
+    if !(args.fourier_tol.is_finite() && args.fourier_tol > 0.0 && args.fourier_tol <= 1.0) {
+        bail!(
+            "--fourier-tol must be a positive number up to 1, got {}",
+            args.fourier_tol
+        );
+    }
+    let mc = McConfig {
+        work,
+        max_paths: args.max_paths,
+        seed: args.seed,
+        antithetic: !args.no_antithetic,
+        control_variate: !args.no_control,
+        intensity,
+        jump_mean_shift: shift,
+        sampling_count_mean: None,
+    };
+    // The library's own check (the same ranges); a failure here is a bug above.
+    if let Err(e) = mc.validate() {
+        bail!("invalid Monte Carlo settings: {e}");
     }
     Ok(CheckConfig {
-        mc: McConfig {
-            work,
-            max_paths: args.max_paths,
-            seed: args.seed,
-            antithetic: !args.no_antithetic,
-            control_variate: !args.no_control,
-            intensity,
-            jump_mean_shift: args.jump_mean_shift,
-            sampling_count_mean: None,
-        },
+        mc,
         z_max: args.z_max,
         fourier_rel_tol: args.fourier_tol,
     })

@@ -9,7 +9,7 @@ use saltus::book::{run_book, PipelineOptions, StreamKeys};
 use saltus::engine::{FourierEngine, PricingEngine, SeriesEngine};
 use saltus::finite_diff::{self, FdConfig};
 use saltus::greeks::SENSITIVITY_NAMES;
-use saltus::monte_carlo::{McConfig, Work};
+use saltus::monte_carlo::{McConfig, Work, MAX_PATHS};
 use saltus::series;
 use std::path::PathBuf;
 use std::process::ExitCode;
@@ -128,21 +128,29 @@ pub fn run(args: Args) -> Result<ExitCode> {
         EngineChoice::Fourier => 1e-5,
         EngineChoice::Mc => 0.05,
     });
-    if !(rel_tol > 0.0 && rel_tol.is_finite()) {
-        bail!("--rel-tol must be a positive number");
+    // Every option is validated here, before any work.
+    if !(rel_tol > 0.0 && rel_tol <= 1.0) {
+        bail!("--rel-tol must be a positive number up to 1, got {rel_tol}");
     }
+    let (lo, hi) = finite_diff::BUMP_RANGE;
     for (name, v) in [
         ("--spot-bump", args.spot_bump),
         ("--vol-bump", args.vol_bump),
     ] {
         if let Some(h) = v {
-            if !(h > 0.0 && h < 1.0) {
-                bail!("{name} must be between 0 and 1, got {h}");
+            if !(h >= lo && h <= hi) {
+                bail!(
+                    "{name} must be between {lo:e} and {hi} (a smaller bump measures rounding, \
+                     a larger one no longer a derivative), got {h}"
+                );
             }
         }
     }
-    if args.paths < 2 {
-        bail!("--paths must be at least 2");
+    if !(2..=MAX_PATHS).contains(&args.paths) {
+        bail!(
+            "--paths must be between 2 and {MAX_PATHS}, got {}",
+            args.paths
+        );
     }
     let mut columns: Vec<String> = Vec::new();
     match args.method {
@@ -229,8 +237,11 @@ pub fn run(args: Args) -> Result<ExitCode> {
                     out.push_f64(ga);
                     out.push_f64(gf);
                     out.push_f64(diff.abs());
-                    if ga != 0.0 {
-                        out.push_f64(diff.abs() / ga.abs());
+                    // (Empty when undefined or beyond double range, e.g. an
+                    // analytic Greek of 1e-319.)
+                    let rel = diff.abs() / ga.abs();
+                    if ga != 0.0 && rel.is_finite() {
+                        out.push_f64(rel);
                     } else {
                         out.push_empty(1);
                     }

@@ -174,7 +174,7 @@ const MAX_ABS_X: f64 = 600.0;
 
 #[inline(always)]
 fn block_kernel(st: &Setup, blk: &Block, acc: &mut LaneSums) -> bool {
-    let w = st.w;
+    let (w1, w2) = (st.w1, st.w2);
     let mut d1 = [0.0; LANES];
     let mut d2 = [0.0; LANES];
     let mut inv_v = [0.0; LANES];
@@ -219,8 +219,8 @@ fn block_kernel(st: &Setup, blk: &Block, acc: &mut LaneSums) -> bool {
     for j in 0..LANES {
         let t1 = phi[j] * m1[j];
         let t2 = phi2[j] * m2[j];
-        let n1 = if w * d1[j] <= 0.0 { t1 } else { 1.0 - t1 };
-        let n2 = if w * d2[j] <= 0.0 { t2 } else { 1.0 - t2 };
+        let n1 = if w1 * d1[j] <= 0.0 { t1 } else { 1.0 - t1 };
+        let n2 = if w2 * d2[j] <= 0.0 { t2 } else { 1.0 - t2 };
         let n = blk.n[j];
         let a = blk.a[j];
         let a_n1 = a * n1;
@@ -230,10 +230,12 @@ fn block_kernel(st: &Setup, blk: &Block, acc: &mut LaneSums) -> bool {
         acc.jb[j] += (blk.b_prev[j] - blk.b[j]) * n2;
         acc.ma[j] += a_n1 * (n - st.mu_a);
         let g = a * phi[j] * inv_v[j];
+        // sigma sqrt(T) / v_n <= 1 (see `Setup::sd0`).
+        let rv = st.sd0 * inv_v[j];
         acc.ga[j] += g;
         acc.wa[j] += g * n;
-        acc.xa[j] += g * d2[j] * inv_v[j];
-        acc.ya[j] += g * (d1[j] * d2[j] - 1.0) * inv_v[j] * inv_v[j];
+        acc.xa[j] += g * d2[j] * rv;
+        acc.ya[j] += g * (d1[j] * d2[j] - 1.0) * rv * rv;
     }
     true
 }
@@ -354,8 +356,10 @@ mod tests {
         let mut next = || rng.unit();
         let mut compared = 0;
         for _ in 0..2000 {
+            let w = if next() < 0.5 { 1.0 } else { -1.0 };
             let st = Setup {
-                w: if next() < 0.5 { 1.0 } else { -1.0 },
+                w1: if next() < 0.2 { -1.0 } else { w },
+                w2: w,
                 x0: 2.0 * next() - 1.0,
                 m: -0.3 * next(),
                 var0: 0.5 * next(),
@@ -363,6 +367,7 @@ mod tests {
                 onek: 0.7 + 0.5 * next(),
                 mu_a: 5.0 * next(),
                 sqrt_t: 1.0,
+                sd0: next(),
             };
             let lo = (10.0 * next()).floor();
             let mut blk = Block {

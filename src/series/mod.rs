@@ -22,7 +22,7 @@
 //! [`SERIES_REL_TOL`] times the partial sum (a lower bound on the price) or
 //! below [`SERIES_ABS_TOL`] times the bounding scale. The bound is returned.
 
-use crate::greeks::Greeks;
+use crate::greeks::{Greeks, SENSITIVITY_NAMES};
 use crate::model::{Contract, OptionKind};
 use crate::normal::{norm_cdf_from_pdf, norm_pdf, FRAC_1_SQRT_2PI};
 use crate::poisson::pmf;
@@ -36,8 +36,25 @@ pub const SERIES_REL_TOL: f64 = 1.0e-14;
 /// only reached when the price is zero or below ~1e-285 of the scale.
 pub const SERIES_ABS_TOL: f64 = 1.0e-300;
 /// Hard cap on the number of terms (never reached for validated inputs:
-/// `lambda T <= 1e5` needs about 25,000).
+/// `lambda T <= 1e5` needs about 25,000, and a call whose own bounding law
+/// would need more is summed on the put's walk, see [`CALL_WALK_RATIO`]).
 pub const SERIES_MAX_TERMS: usize = 1_000_000;
+/// A call is summed on the put's walk (the law of `b_n`, mean `lambda T`)
+/// instead of its own (`a_n`, mean `lambda' T = lambda T (1 + k)`) when
+/// `lambda' T` exceeds this multiple of `max(lambda T, CALL_WALK_MIN_MEAN)`:
+/// its own walk would need at least four times as many terms (the width of
+/// a Poisson law grows like the square root of its mean). With a large jump
+/// vol `1 + k = e^{mu_J + delta^2/2}` is astronomically large (`e^50` at
+/// `delta = 10`) and the call's own walk would need billions of terms.
+pub const CALL_WALK_RATIO: f64 = 16.0;
+/// See [`CALL_WALK_RATIO`].
+pub const CALL_WALK_MIN_MEAN: f64 = 64.0;
+/// Above this `lambda' T` a call is always summed on the put's walk; below
+/// it only when `d1` at the mode of `a_n` exceeds [`CALL_WALK_MIN_D1`], so
+/// that `Q_S(S_T > K) = 1 - sum a_n N(-d1_n)` keeps its relative digits.
+const CALL_WALK_MAX_MEAN: f64 = 1.0e8;
+/// See [`CALL_WALK_MAX_MEAN`].
+const CALL_WALK_MIN_D1: f64 = 4.0;
 
 /// Result of the series engine: price, analytic Greeks and truncation report.
 #[derive(Debug, Clone, Copy, PartialEq)]
@@ -55,19 +72,23 @@ pub struct SeriesResult {
 #[non_exhaustive]
 pub enum SeriesError {
     /// The hard cap on terms was reached.
-    #[error("series did not converge within {terms} terms (bound {bound:e})")]
+    #[error("series did not converge within {terms} terms (truncation bound {bound:e})")]
     NotConverged {
         /// Terms evaluated.
         terms: usize,
-        /// Truncation bound reached.
+        /// Truncation bound reached (infinite while a geometric tail bound
+        /// does not hold yet; never NaN).
         bound: f64,
     },
-    /// A result overflowed double precision (extreme jump sizes with a huge
-    /// jump intensity): reported instead of returning a wrong number.
-    #[error("series result is not representable in double precision ({what})")]
+    /// A result is not representable in double precision for these inputs
+    /// (e.g. gamma of a spot near 1e-300, growth factors beyond e^709):
+    /// reported instead of returning a wrong number.
+    #[error("{what} overflows double precision: {why}; this row is outside the supported range")]
     Overflow {
-        /// Which quantity failed.
+        /// Which quantity failed (a column name).
         what: &'static str,
+        /// Which inputs make it overflow, in user terms.
+        why: String,
     },
 }
 
@@ -88,9 +109,9 @@ struct Sums {
     ga: f64,
     /// sum a_n phi1 n / v
     wa: f64,
-    /// sum a_n phi1 d2 / v^2
+    /// sum a_n phi1 d2 sigma sqrt(T) / v^2
     xa: f64,
-    /// sum a_n phi1 (d1 d2 - 1) / v^3
+    /// sum a_n phi1 (d1 d2 - 1) sigma^2 T / v^3
     ya: f64,
     /// right-derivative contributions of zero-variance terms at the kink
     kink_vega: f64,
@@ -115,7 +136,11 @@ const MONEYNESS_RECURSION_LIMIT: f64 = 600.0;
 
 /// Everything about a contract that does not depend on `n`.
 struct Setup {
-    w: f64,
+    /// Sign applied to `d1` in `N(. d1)`: `omega`, or `-1` for a call summed
+    /// on the put's walk (then the `a` sums are those of the put).
+    w1: f64,
+    /// Sign applied to `d2` in `N(. d2)` (always `omega`).
+    w2: f64,
     x0: f64,
     m: f64,
     var0: f64,
@@ -123,6 +148,9 @@ struct Setup {
     onek: f64,
     mu_a: f64,
     sqrt_t: f64,
+    /// `sigma sqrt(T)`: vanna and volga sums carry `sigma sqrt(T) / v_n <= 1`
+    /// instead of `1 / v_n`, so they do not overflow for tiny `v_n`.
+    sd0: f64,
 }
 
 impl Setup {
@@ -131,7 +159,7 @@ impl Setup {
         let n = wt.n as f64;
         let x = self.x0 + n * self.m;
         let var = self.var0 + n * self.dvar;
-        let w = self.w;
+        let (w1, w2) = (self.w1, self.w2);
         if var > 0.0 {
             let v = var.sqrt();
             let inv_v = 1.0 / v;
@@ -145,8 +173,8 @@ impl Setup {
             } else {
                 norm_pdf(d2)
             };
-            let n1 = norm_cdf_from_pdf(w * d1, phi);
-            let n2 = norm_cdf_from_pdf(w * d2, phi2);
+            let n1 = norm_cdf_from_pdf(w1 * d1, phi);
+            let n2 = norm_cdf_from_pdf(w2 * d2, phi2);
             let a_n1 = wt.a * n1;
             s.pa += a_n1;
             s.pb += wt.b * n2;
@@ -154,27 +182,33 @@ impl Setup {
             s.jb += (wt.b_prev - wt.b) * n2;
             s.ma += a_n1 * (n - self.mu_a);
             let g = wt.a * phi * inv_v;
-            s.ga += g;
-            s.wa += g * n;
-            s.xa += g * d2 * inv_v;
-            s.ya += g * (d1 * d2 - 1.0) * inv_v * inv_v;
+            // (g = 0 when phi(d1) underflows; then d1 d2 may be infinite.)
+            if g != 0.0 {
+                let rv = self.sd0 * inv_v;
+                s.ga += g;
+                s.wa += g * n;
+                s.xa += g * d2 * rv;
+                s.ya += g * (d1 * d2 - 1.0) * rv * rv;
+            }
         } else {
             // Zero variance: the term is the discounted intrinsic value of a
             // deterministic forward. At the kink (x = 0) use the symmetric
             // slope and the right-derivative in the volatilities.
-            let wx = w * x;
-            let step = if wx > 0.0 {
-                1.0
-            } else if wx < 0.0 {
-                0.0
-            } else {
-                0.5
+            let step = |wx: f64| {
+                if wx > 0.0 {
+                    1.0
+                } else if wx < 0.0 {
+                    0.0
+                } else {
+                    0.5
+                }
             };
-            s.pa += wt.a * step;
-            s.pb += wt.b * step;
-            s.ja += (self.onek * wt.a_prev - wt.a) * step;
-            s.jb += (wt.b_prev - wt.b) * step;
-            s.ma += wt.a * step * (n - self.mu_a);
+            let (step1, step2) = (step(w1 * x), step(w2 * x));
+            s.pa += wt.a * step1;
+            s.pb += wt.b * step2;
+            s.ja += (self.onek * wt.a_prev - wt.a) * step1;
+            s.jb += (wt.b_prev - wt.b) * step2;
+            s.ma += wt.a * step1 * (n - self.mu_a);
             if x == 0.0 {
                 s.kink_vega += wt.a * FRAC_1_SQRT_2PI * self.sqrt_t;
                 s.kink_jump_vol += wt.a * FRAC_1_SQRT_2PI * n.sqrt();
@@ -228,26 +262,67 @@ pub fn price(c: &Contract) -> Result<SeriesResult, SeriesError> {
     let mu_a = mu_b * onek;
     let dq = (-c.div_yield * t).exp();
     let dr = (-c.rate * t).exp();
+    if !dq.is_finite() || !dr.is_finite() {
+        let (what, col, x) = if dq.is_finite() {
+            ("exp(-rate x expiry)", "rate", c.rate)
+        } else {
+            ("exp(-div_yield x expiry)", "div_yield", c.div_yield)
+        };
+        return Err(SeriesError::Overflow {
+            what: "price",
+            why: format!(
+                "{col} {} over expiry {} years makes the discount factor {what} infinite",
+                short(x),
+                short(t)
+            ),
+        });
+    }
     let se = c.spot * dq;
     let kd = c.strike * dr;
-    let setup = Setup {
-        w,
-        x0: (c.spot / c.strike).ln() + (c.rate - c.div_yield - lam * k) * t,
+    // ln(S/K), also when S/K itself over- or underflows (strike 1e-320).
+    let ratio = c.spot / c.strike;
+    let log_moneyness = if ratio.is_normal() {
+        ratio.ln()
+    } else {
+        c.spot.ln() - c.strike.ln()
+    };
+    // (r - q - lambda k) T, also when lambda k overflows (lambda 1e300, T tiny).
+    let lam_k = lam * k;
+    let drift = if lam_k.is_finite() {
+        (c.rate - c.div_yield - lam_k) * t
+    } else {
+        (c.rate - c.div_yield) * t - mu_b * k
+    };
+    let mut setup = Setup {
+        w1: w,
+        w2: w,
+        x0: log_moneyness + drift,
         m,
         var0: c.vol * c.vol * t,
         dvar: c.jumps.vol * c.jumps.vol,
         onek,
         mu_a,
         sqrt_t: t.sqrt(),
+        sd0: c.vol * t.sqrt(),
     };
+    // A call whose own bounding law is far wider than the put's is summed on
+    // the put's walk: the terms are bounded by K e^{-rT} b_n there too, and
+    // the a-sums are taken with N(-d1) (see `CALL_WALK_RATIO`).
+    let put_walk = c.kind == OptionKind::Call && call_on_put_walk(&setup, mu_a, mu_b);
+    if put_walk {
+        setup.w1 = -1.0;
+    }
     // The law that bounds the terms, its mean and the price scale it carries.
     let (mu_w, scale) = match c.kind {
-        OptionKind::Call => (mu_a, se),
-        OptionKind::Put => (mu_b, kd),
+        OptionKind::Call if !put_walk => (mu_a, se),
+        _ => (mu_b, kd),
     };
-    let bounding = |wt: &Weights| match c.kind {
-        OptionKind::Call => wt.a,
-        OptionKind::Put => wt.b,
+    let bounding = |wt: &Weights| {
+        if put_walk || c.kind == OptionKind::Put {
+            wt.b
+        } else {
+            wt.a
+        }
     };
     // Start at the mode of the bounding law, or at 0 when the mode is inside
     // the first block anyway (then there is no downward side to sum).
@@ -367,7 +442,15 @@ pub fn price(c: &Contract) -> Result<SeriesResult, SeriesError> {
             None => (0.0, 1.0),
         };
         let (lane_pa, lane_pb) = acc.price_parts();
-        let partial = w * (se * (sums.pa + lane_pa) - kd * (sums.pb + lane_pb));
+        let (pa, pb) = (sums.pa + lane_pa, sums.pb + lane_pb);
+        // On the put's walk a call's partial sum is S e^{-qT} (1 - sum a_n N(-d1))
+        // - K e^{-rT} sum b_n N(d2); the omitted terms of either sum are
+        // bounded by K e^{-rT} b_n (put terms are non-negative).
+        let partial = if put_walk {
+            se * (1.0 - pa) - kd * pb
+        } else {
+            w * (se * pa - kd * pb)
+        };
         let tol = (SERIES_REL_TOL * partial).max(SERIES_ABS_TOL * scale);
         if up_den > 0.0
             && lo_den > 0.0
@@ -376,7 +459,9 @@ pub fn price(c: &Contract) -> Result<SeriesResult, SeriesError> {
             break scale * (up_num / up_den + lo_num / lo_den);
         }
         if terms >= SERIES_MAX_TERMS {
-            let bound = scale * (up_num / up_den.max(0.0) + lo_num / lo_den.max(0.0));
+            // While a geometric bound does not hold yet the bound is infinite.
+            let side = |num: f64, den: f64| if den > 0.0 { num / den } else { f64::INFINITY };
+            let bound = scale * (side(up_num, up_den) + side(lo_num, lo_den));
             return Err(SeriesError::NotConverged { terms, bound });
         }
         // Extend the side whose remaining bound is larger.
@@ -402,40 +487,141 @@ pub fn price(c: &Contract) -> Result<SeriesResult, SeriesError> {
     let s = &sums;
     let sigma = c.vol;
     let delta_j = c.jumps.vol;
-    let raw_price = w * (se * s.pa - kd * s.pb);
-    if !raw_price.is_finite() {
-        return Err(SeriesError::Overflow { what: "price" });
-    }
-    // Clamp only rounding below zero (the price of an option is never negative).
-    let price = raw_price.max(0.0);
-    let jump_gap = w * (se * s.ja - kd * s.jb);
-    let fwd_part = w * se * s.pa;
-    let dv_dt = lam * jump_gap - c.rate * price
-        + (c.rate - c.div_yield - lam * k) * fwd_part
-        + 0.5 * se * sigma * sigma * s.ga;
-    let d_jump_mean = w * se * s.ma;
-    let greeks = Greeks {
-        price,
-        delta: w * dq * s.pa,
-        gamma: dq * s.ga / c.spot,
-        vega: se * (sigma * t * s.ga + s.kink_vega),
-        theta: -dv_dt,
-        rho: w * t * kd * s.pb,
-        div_rho: -t * fwd_part,
-        d_jump_rate: t * jump_gap - k * t * fwd_part,
-        d_jump_mean,
-        d_jump_vol: delta_j * d_jump_mean + se * (delta_j * s.wa + s.kink_jump_vol),
-        vanna: -dq * sigma * t * s.xa,
-        volga: se * t * s.ga + se * sigma * sigma * t * t * s.ya,
+    let greeks = if put_walk {
+        // A call from the put-side a-sums: sum a_n N(d1_n) = 1 - s.pa,
+        // sum ((1+k) a_{n-1} - a_n) N(d1_n) = k - s.ja and
+        // sum a_n N(d1_n) (n - lambda' T) = -s.ma (the Poisson weights sum to
+        // 1, their differences to k, their centred first moment to 0). The
+        // terms in `k` cancel exactly in the jump-rate and theta sums and are
+        // left out rather than cancelled in floating point.
+        let pa = 1.0 - s.pa;
+        let raw_price = se * pa - kd * s.pb;
+        if !raw_price.is_finite() {
+            return Err(overflow(c, "price", raw_price));
+        }
+        let price = raw_price.max(0.0);
+        let fwd_part = se * pa;
+        // (jump_gap - k fwd_part): d_jump_rate / T.
+        let jr = se * (k * s.pa - s.ja) - kd * s.jb;
+        let dv_dt = lam * jr - c.rate * price
+            + (c.rate - c.div_yield) * fwd_part
+            + 0.5 * se * sigma * sigma * s.ga;
+        let d_jump_mean = -se * s.ma;
+        Greeks {
+            price,
+            delta: dq * pa,
+            gamma: dq * s.ga / c.spot,
+            vega: se * (sigma * t * s.ga + s.kink_vega),
+            theta: -dv_dt,
+            rho: t * kd * s.pb,
+            div_rho: -t * fwd_part,
+            d_jump_rate: t * jr,
+            d_jump_mean,
+            d_jump_vol: delta_j * d_jump_mean + se * (delta_j * s.wa + s.kink_jump_vol),
+            vanna: -dq * setup.sqrt_t * s.xa,
+            volga: se * t * (s.ga + s.ya),
+        }
+    } else {
+        let raw_price = w * (se * s.pa - kd * s.pb);
+        if !raw_price.is_finite() {
+            return Err(overflow(c, "price", raw_price));
+        }
+        // Clamp only rounding below zero (the price of an option is never negative).
+        let price = raw_price.max(0.0);
+        let jump_gap = w * (se * s.ja - kd * s.jb);
+        let fwd_part = w * se * s.pa;
+        let dv_dt = lam * jump_gap - c.rate * price
+            + (c.rate - c.div_yield - lam * k) * fwd_part
+            + 0.5 * se * sigma * sigma * s.ga;
+        let d_jump_mean = w * se * s.ma;
+        Greeks {
+            price,
+            delta: w * dq * s.pa,
+            gamma: dq * s.ga / c.spot,
+            vega: se * (sigma * t * s.ga + s.kink_vega),
+            theta: -dv_dt,
+            rho: w * t * kd * s.pb,
+            div_rho: -t * fwd_part,
+            d_jump_rate: t * jump_gap - k * t * fwd_part,
+            d_jump_mean,
+            d_jump_vol: delta_j * d_jump_mean + se * (delta_j * s.wa + s.kink_jump_vol),
+            vanna: -dq * setup.sqrt_t * s.xa,
+            volga: se * t * (s.ga + s.ya),
+        }
     };
-    if !greeks.sensitivities().iter().all(|x| x.is_finite()) {
-        return Err(SeriesError::Overflow { what: "Greeks" });
+    if let Some((i, &v)) = greeks
+        .sensitivities()
+        .iter()
+        .enumerate()
+        .find(|(_, x)| !x.is_finite())
+    {
+        return Err(overflow(c, SENSITIVITY_NAMES[i], v));
     }
     Ok(SeriesResult {
         greeks,
         terms,
         truncation_bound: bound,
     })
+}
+
+/// Should this call be summed on the put's walk? See [`CALL_WALK_RATIO`].
+fn call_on_put_walk(st: &Setup, mu_a: f64, mu_b: f64) -> bool {
+    if mu_a <= CALL_WALK_RATIO * mu_b.max(CALL_WALK_MIN_MEAN) {
+        return false;
+    }
+    if mu_a > CALL_WALK_MAX_MEAN {
+        return true;
+    }
+    // d1 at the mode of a_n: far above 0, the share measure puts almost all
+    // its mass above the strike and 1 - sum a_n N(-d1_n) loses no digits.
+    let x = st.x0 + mu_a * st.m;
+    let var = st.var0 + mu_a * st.dvar;
+    if var > 0.0 {
+        let v = var.sqrt();
+        x / v + 0.5 * v > CALL_WALK_MIN_D1
+    } else {
+        x > 0.0
+    }
+}
+
+/// A number in short form for messages (`1e-320`, `0.25`).
+fn short(x: f64) -> String {
+    if x != 0.0 && (x.abs() >= 1e6 || x.abs() < 1e-4) {
+        format!("{x:e}")
+    } else {
+        format!("{x}")
+    }
+}
+
+/// The overflow error for quantity `what` (value `v`), naming the inputs
+/// that drive it.
+fn overflow(c: &Contract, what: &'static str, v: f64) -> SeriesError {
+    let spread = c.vol * c.expiry.sqrt();
+    let why = match what {
+        "gamma" | "vanna" | "volga" | "vega" => format!(
+            "it scales like 1 / (spot x vol x sqrt(expiry)) and spot {} with vol x sqrt(expiry) = {} gives {}",
+            short(c.spot),
+            short(spread),
+            short(v)
+        ),
+        "theta" => format!(
+            "it scales like spot x vol / sqrt(expiry) and jump_rate x spot; spot {}, expiry {}, vol {}, jump_rate {} give {}",
+            short(c.spot),
+            short(c.expiry),
+            short(c.vol),
+            short(c.jumps.rate),
+            short(v)
+        ),
+        _ => format!(
+            "spot {}, strike {} (strike/spot ratio {}), expiry {} give {}",
+            short(c.spot),
+            short(c.strike),
+            short(c.strike / c.spot),
+            short(c.expiry),
+            short(v)
+        ),
+    };
+    SeriesError::Overflow { what, why }
 }
 
 #[cfg(test)]
