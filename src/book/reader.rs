@@ -13,6 +13,9 @@ use std::fmt;
 pub struct BookRow<'a> {
     /// 1-based data row number (the header is row 0).
     pub row: u64,
+    /// Line of the record in the input (its first line, for a record with
+    /// quoted line breaks).
+    pub line: u64,
     /// The `id` column, if the book has one.
     id_field: Option<&'a str>,
     /// The `underlying` column (empty when absent), spaces trimmed.
@@ -231,6 +234,7 @@ pub fn parse_row<'a>(
     };
     Ok(BookRow {
         row,
+        line,
         id_field,
         underlying,
         contract,
