@@ -408,13 +408,19 @@ impl ScenarioSpec {
     }
 }
 
-/// Short form of a number for messages: shortest round trip, scientific
-/// when very large or small.
+/// Short form of a number for messages: 12 significant digits (so a shock
+/// of 0.07 reads 7%, not 7.000000000000001%), scientific when very large or
+/// small.
 fn short(x: f64) -> String {
+    let x = format!("{x:.11e}").parse::<f64>().unwrap_or(x);
     if x != 0.0 && (x.abs() >= 1e9 || x.abs() < 1e-6) {
         format!("{x:e}")
     } else {
-        zmij::Buffer::new().format(x).to_string()
+        let s = zmij::Buffer::new().format(x).to_string();
+        match s.strip_suffix(".0") {
+            Some(integer) => integer.to_string(),
+            None => s,
+        }
     }
 }
 
@@ -495,7 +501,10 @@ impl ScenarioKind {
 
 impl fmt::Display for ScenarioKind {
     fn fmt(&self, f: &mut fmt::Formatter<'_>) -> fmt::Result {
-        let pct = |x: f64| format!("{:+}%", short(x * 100.0).trim_start_matches('+'));
+        let pct = |x: f64| {
+            let sign = if x > 0.0 { "+" } else { "" };
+            format!("{sign}{}%", short(x * 100.0))
+        };
         match *self {
             ScenarioKind::Grid {
                 spot_shock,
@@ -985,9 +994,10 @@ impl RiskReport {
     }
 }
 
-/// Builds the report from positions held in memory, in the same fixed
-/// chunked order as the streaming command (so the digits agree). `positions`
-/// may be in any order; failed rows are not positions.
+/// Builds the report from positions held in memory: sorted by row, added in
+/// chunks of [`CHUNK_ROWS`] positions merged in order, like the streaming
+/// command (whose chunks also count failed rows, so its digits agree when no
+/// row failed). `positions` may be in any order; failed rows are not positions.
 ///
 /// # Errors
 /// A message naming the row when a position's exposure is not finite.
@@ -1037,5 +1047,12 @@ mod tests {
         assert_eq!(short(1e308), "1e308");
         assert_eq!(short(99500.0), "99500");
         assert_eq!(short(0.05), "0.05");
+        assert_eq!(short(-20.0), "-20");
+        assert_eq!(short(0.07 * 100.0), "7");
+        let k = ScenarioKind::Grid {
+            spot_shock: 0.05,
+            vol_shock: -0.1,
+        };
+        assert_eq!(k.to_string(), "grid: spot +5%, vol -10 points");
     }
 }
