@@ -697,12 +697,46 @@ fn problems_html(r: &RiskReport) -> String {
     t
 }
 
+/// Underlyings with a heat map of their own (the book always has one).
+pub const MAX_HEAT_MAPS: usize = 20;
+/// Underlyings drawn in the line charts (one colour each; the book is extra).
+pub const MAX_LINES: usize = PALETTE.len();
+
+/// The groups to chart: the book and the `n` underlyings with the largest
+/// absolute grid P&L (ties in name order), shown in name order.
+fn charted<'a>(groups: &[Group<'a>], n: usize) -> Vec<Group<'a>> {
+    let worst = |g: &Group| {
+        g.scenarios
+            .grid
+            .iter()
+            .flatten()
+            .map(|c| c.pnl.abs())
+            .filter(|x| x.is_finite())
+            .fold(0.0f64, f64::max)
+    };
+    let mut ranked: Vec<(usize, f64)> = groups
+        .iter()
+        .enumerate()
+        .filter(|(_, g)| g.underlying.is_some())
+        .map(|(i, g)| (i, worst(g)))
+        .collect();
+    ranked.sort_by(|a, b| b.1.total_cmp(&a.1).then(a.0.cmp(&b.0)));
+    let mut keep: Vec<usize> = ranked.into_iter().take(n).map(|(i, _)| i).collect();
+    keep.sort_unstable();
+    keep.into_iter()
+        .map(|i| groups[i])
+        .chain(groups.iter().filter(|g| g.underlying.is_none()).copied())
+        .collect()
+}
+
 fn html(r: &RiskReport, title: &str) -> String {
     let xs = &r.spec.spot_shocks;
     let groups = r.groups();
+    let n_underlyings = groups.len() - 1;
+    let lines = charted(&groups, MAX_LINES);
     let zero_vol = r.spec.vol_shocks.iter().position(|v| *v == 0.0);
     let series = |with_book: bool, value: &dyn Fn(&Group) -> Vec<f64>| -> Vec<Series> {
-        groups
+        lines
             .iter()
             .filter(|g| with_book || g.underlying.is_some())
             .map(|g| (display_name(g), g.underlying.is_none(), value(g)))
@@ -728,7 +762,17 @@ fn html(r: &RiskReport, title: &str) -> String {
     let gamma_series = series(false, &curve(|p| p.gamma_cash_1pct));
     let vega_series = series(true, &curve(|p| p.vega_1pt));
     let mut heat_maps = String::new();
-    for g in &groups {
+    if n_underlyings > MAX_HEAT_MAPS || n_underlyings > MAX_LINES {
+        let _ = write!(
+            heat_maps,
+            "<p class=\"note\">The book has {n_underlyings} underlyings: the line charts show the {} and the \
+             heat maps the {} with the largest absolute P&amp;L on the grid, and the book; every underlying is in \
+             the tables above and in the CSV files.</p>",
+            n_underlyings.min(MAX_LINES),
+            n_underlyings.min(MAX_HEAT_MAPS)
+        );
+    }
+    for g in &charted(&groups, MAX_HEAT_MAPS) {
         heat_maps.push_str("<figure>");
         heat_maps.push_str(&heat_map(
             &format!("P&L by full revaluation: {}", display_name(g)),

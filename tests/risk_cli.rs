@@ -833,3 +833,37 @@ fn pipeline_state_is_per_chunk_and_merged_in_chunk_order() {
         assert_eq!(merged[1].failed, [(3000, 3001, b"r3000".to_vec())]);
     }
 }
+
+#[test]
+fn risk_report_page_stays_bounded_with_many_underlyings() {
+    // 25 underlyings: every one in the tables, heat maps for the 20 with the
+    // largest grid P&L (row U24 has the largest quantity) and the book, line
+    // charts with 8 underlyings.
+    let mut book = format!("{HEADER}\n");
+    for i in 0..25 {
+        book.push_str(&format!(
+            "R{i},U{i:02},call,100,100,1,0.02,0.01,0.2,0.5,-0.1,0.15,{},1\n",
+            i + 1
+        ));
+    }
+    let (_tmp, out, code, err) = risk_run(book.as_bytes(), &SMALL_GRID);
+    assert_eq!(code, 0, "{err}");
+    let html = fs::read_to_string(out.join("report.html")).unwrap();
+    assert_eq!(
+        html.matches("<svg").count(),
+        4 + 21,
+        "4 line charts, 21 heat maps"
+    );
+    assert!(
+        html.contains("P&amp;L by full revaluation: U24")
+            || html.contains("P&L by full revaluation: U24")
+    );
+    assert!(!html.contains("full revaluation: U00<") && !html.contains("full revaluation: U04<"));
+    for i in 0..25 {
+        assert!(
+            html.contains(&format!("<td>U{i:02}</td>")),
+            "U{i:02} in the tables"
+        );
+    }
+    assert!(html.contains("The book has 25 underlyings"));
+}
