@@ -686,7 +686,7 @@ pub struct RiskAccumulator {
     failed_rows: u64,
     first_failed_rows: Vec<FailedRow>,
     scenario_failures: u64,
-    /// Of a chunk: all its failures (taken by the caller to stream them).
+    /// Of a chunk: all its failures (streamed by the caller before merging).
     /// Of a merged total: the first [`MAX_LISTED`].
     failures: Vec<ScenarioFailure>,
 }
@@ -830,10 +830,10 @@ impl RiskAccumulator {
         }
     }
 
-    /// Takes the scenario failures recorded so far (of a chunk: all of them),
-    /// so the caller can stream them out before merging.
-    pub fn take_scenario_failures(&mut self) -> Vec<ScenarioFailure> {
-        std::mem::take(&mut self.failures)
+    /// The scenario failures recorded (of a chunk: all of them, in row
+    /// order), for the caller to stream out before merging the chunk.
+    pub fn scenario_failure_list(&self) -> &[ScenarioFailure] {
+        &self.failures
     }
 
     /// Adds `o` (the next chunk, in chunk order) to `self`. Lists are kept up

@@ -584,6 +584,12 @@ fn issue8_risk_row_whose_shocked_vol_leaves_the_domain_completes() {
         html.contains("26 scenario revaluations failed"),
         "the report says so"
     );
+    assert_eq!(
+        html.matches("<td>grid: spot ").count(),
+        26,
+        "and lists them"
+    );
+    assert!(html.contains("<td>grid: spot +30%, vol 10 points</td>"));
 }
 
 #[test]

@@ -194,9 +194,9 @@ pub fn run(args: Args) -> Result<ExitCode> {
             acc.add(spec_ref, &p, &e);
             Ok(())
         },
-        |mut chunk: RiskAccumulator| {
-            for f in chunk.take_scenario_failures() {
-                failures_out.write(&f)?;
+        |chunk: RiskAccumulator| {
+            for f in chunk.scenario_failure_list() {
+                failures_out.write(f)?;
             }
             total.merge(chunk);
             Ok(())
