@@ -1,5 +1,5 @@
 //! Book risk: exposures aggregated by underlying and scenario P&L by full
-//! revaluation.
+//! revaluation, accumulated while the book streams.
 //!
 //! Every position is scaled by `quantity x multiplier`. Exposures are in
 //! desk units (see [`Exposure`]). Scenarios reprice every position with the
@@ -7,20 +7,61 @@
 //! a grid of spot shocks (relative) crossed with vol shocks (absolute vol
 //! points, the shocked vol floored at 0), and instantaneous jumps of the
 //! underlying (by each position's model mean jump `k`, and by user-given
-//! sizes). All aggregation runs over positions sorted by row, so totals do
-//! not depend on the thread count.
+//! sizes).
+//!
+//! # Design: constant memory, fixed summation order
+//!
+//! Nothing per row is kept. A [`RiskAccumulator`] holds, per underlying and
+//! for the book, the exposure sums, one cell per scenario and one point per
+//! Greek-versus-spot curve, plus the first [`MAX_LISTED`] failed rows and
+//! scenario failures; its size depends on the number of underlyings and on
+//! the scenario grid, not on the number of rows. The book pipeline
+//! ([`crate::book::run_book_with_state`]) gives each chunk of
+//! [`CHUNK_ROWS`] rows a fresh accumulator, which its rows
+//! add to in row order ([`RiskAccumulator::add`], run in parallel across
+//! chunks), and merges the chunk accumulators in chunk order
+//! ([`RiskAccumulator::merge`]). The chunks do not depend on the thread count,
+//! so every sum has the same digits on any number of threads. [`build`] runs
+//! the same chunked order over positions held in memory.
+//!
+//! # The per-row contract
+//!
+//! A row whose base price, Greeks or exposure is not a finite number is a
+//! row error ([`exposure_of`]): it is excluded from everything. A row that
+//! prices but whose shocked copy cannot be revalued (say vol 9.95 shocked by
+//! +10 points leaves the model's domain) is excluded from that scenario cell
+//! only: the cell counts it in `rows_failed` and a [`ScenarioFailure`] names
+//! the row, the cell and the reason. A sum of finite contributions can still
+//! overflow; [`RiskReport::aggregate_problems`] lists every aggregate that is
+//! not finite.
 
+use crate::book::pipeline::CHUNK_ROWS;
+use crate::book::{ChunkState, FailedRecord};
 use crate::greeks::{Greeks, DAYS_PER_YEAR};
 use crate::model::Contract;
 use crate::series;
-use rayon::prelude::*;
 use std::collections::BTreeMap;
+use std::fmt;
 
-/// One priced position of a book.
+/// How many failed rows, scenario failures and aggregate problems are kept
+/// for the report (all failed rows are in `positions.csv`, all scenario
+/// failures in `scenario_failures.csv`; the counts are always complete).
+pub const MAX_LISTED: usize = 1000;
+/// Largest relative spot (and jump) shock accepted: +1000%.
+pub const MAX_SPOT_SHOCK: f64 = 10.0;
+/// Largest absolute vol shock accepted, either sign: 100 vol points (1.00).
+pub const MAX_VOL_SHOCK: f64 = 1.0;
+/// Most shocks accepted in one list (spot, vol or jump).
+pub const MAX_SHOCKS: usize = 100;
+
+/// One priced position of a book (owned; see [`PositionRef`] for the
+/// borrowed form used while streaming).
 #[derive(Debug, Clone)]
 pub struct Position {
     /// 1-based data row.
     pub row: u64,
+    /// Line of the record in the input.
+    pub line: u64,
     /// Row id.
     pub id: String,
     /// Grouping key.
@@ -40,6 +81,38 @@ impl Position {
     pub fn weight(&self) -> f64 {
         self.quantity * self.multiplier
     }
+
+    /// The borrowed view.
+    pub fn as_ref(&self) -> PositionRef<'_> {
+        PositionRef {
+            row: self.row,
+            line: self.line,
+            id: &self.id,
+            underlying: &self.underlying,
+            contract: self.contract,
+            weight: self.weight(),
+            greeks: self.greeks,
+        }
+    }
+}
+
+/// A priced position borrowing its text from the input record.
+#[derive(Debug, Clone, Copy)]
+pub struct PositionRef<'a> {
+    /// 1-based data row.
+    pub row: u64,
+    /// Line of the record in the input.
+    pub line: u64,
+    /// Row id.
+    pub id: &'a str,
+    /// Grouping key.
+    pub underlying: &'a str,
+    /// The option.
+    pub contract: Contract,
+    /// `quantity x multiplier`.
+    pub weight: f64,
+    /// Analytic price and Greeks per unit.
+    pub greeks: Greeks,
 }
 
 /// Aggregated exposure of a set of positions, in desk units.
@@ -73,10 +146,31 @@ pub struct Exposure {
     pub d_jump_vol_1pct: f64,
 }
 
+/// Names of the [`Exposure`] sums, in [`Exposure::values`] order (the
+/// columns of `totals.csv` after `positions`).
+pub const EXPOSURE_COLUMNS: [&str; 12] = [
+    "value",
+    "delta",
+    "delta_cash",
+    "gamma",
+    "gamma_cash_1pct",
+    "vega_1pt",
+    "theta_1d",
+    "rho_1pct",
+    "div_rho_1pct",
+    "d_jump_rate",
+    "d_jump_mean_1pct",
+    "d_jump_vol_1pct",
+];
+
 impl Exposure {
-    /// Exposure of one position.
+    /// Exposure of one position (not checked; see [`exposure_of`]).
     pub fn of(p: &Position) -> Exposure {
-        let w = p.weight();
+        Exposure::of_ref(&p.as_ref())
+    }
+
+    fn of_ref(p: &PositionRef) -> Exposure {
+        let w = p.weight;
         let g = &p.greeks;
         let s = p.contract.spot;
         Exposure {
@@ -85,7 +179,9 @@ impl Exposure {
             delta: w * g.delta,
             delta_cash: w * g.delta * s,
             gamma: w * g.gamma,
-            gamma_cash_1pct: w * g.gamma * s * s * 0.01,
+            // gamma S is of the order of delta: multiplying by S in two
+            // steps keeps S^2 from overflowing on its own.
+            gamma_cash_1pct: w * (g.gamma * s) * s * 0.01,
             vega_1pt: w * g.vega * 0.01,
             theta_1d: w * g.theta / DAYS_PER_YEAR,
             rho_1pct: w * g.rho * 0.01,
@@ -94,6 +190,38 @@ impl Exposure {
             d_jump_mean_1pct: w * g.d_jump_mean * 0.01,
             d_jump_vol_1pct: w * g.d_jump_vol * 0.01,
         }
+    }
+
+    /// The twelve sums in [`EXPOSURE_COLUMNS`] order.
+    pub fn values(&self) -> [f64; 12] {
+        [
+            self.value,
+            self.delta,
+            self.delta_cash,
+            self.gamma,
+            self.gamma_cash_1pct,
+            self.vega_1pt,
+            self.theta_1d,
+            self.rho_1pct,
+            self.div_rho_1pct,
+            self.d_jump_rate,
+            self.d_jump_mean_1pct,
+            self.d_jump_vol_1pct,
+        ]
+    }
+
+    /// Names of the sums that are not finite. The book level skips `delta`
+    /// and `gamma`, which it does not report (units differ across underlyings).
+    pub fn non_finite(&self, book: bool) -> Vec<&'static str> {
+        EXPOSURE_COLUMNS
+            .iter()
+            .zip(self.values())
+            .filter(|(name, x)| {
+                let reported = !(book && matches!(**name, "delta" | "gamma"));
+                reported && !x.is_finite()
+            })
+            .map(|(name, _)| *name)
+            .collect()
     }
 
     /// Field-by-field sum.
@@ -116,51 +244,419 @@ impl Exposure {
     }
 }
 
-/// The scenarios to run.
+/// The exposure of one position, checked: the weight, the price, every
+/// Greek and every exposure contribution must be finite.
+///
+/// # Errors
+/// A message naming the first value that is not finite.
+pub fn exposure_of(p: &PositionRef) -> Result<Exposure, String> {
+    if !p.weight.is_finite() {
+        return Err("quantity x multiplier is not finite (overflow)".into());
+    }
+    for (name, x) in crate::greeks::DESK_COLUMNS
+        .iter()
+        .zip(p.greeks.desk_units())
+    {
+        if !x.is_finite() {
+            return Err(format!("{name} is not finite"));
+        }
+    }
+    let e = Exposure::of_ref(p);
+    if let Some(name) = e.non_finite(false).first() {
+        let what = if *name == "value" {
+            "position_value".to_string()
+        } else {
+            format!("the exposure {name}")
+        };
+        return Err(format!(
+            "{what} is not finite: quantity x multiplier x {} overflows",
+            if *name == "value" { "price" } else { "Greek" }
+        ));
+    }
+    Ok(e)
+}
+
+/// The scenarios to run. Build it with [`ScenarioSpec::new`], which
+/// validates every value.
 #[derive(Debug, Clone, PartialEq)]
 pub struct ScenarioSpec {
-    /// Relative spot shocks (e.g. -0.3 .. 0.3).
+    /// Relative spot shocks (e.g. -0.3 .. 0.3), ascending.
     pub spot_shocks: Vec<f64>,
-    /// Absolute vol shocks (0.01 = one vol point).
+    /// Absolute vol shocks (0.01 = one vol point), ascending.
     pub vol_shocks: Vec<f64>,
-    /// User-given instantaneous relative jumps of the underlying.
+    /// User-given instantaneous relative jumps of the underlying, as given.
     pub jump_shocks: Vec<f64>,
 }
 
 impl Default for ScenarioSpec {
     fn default() -> Self {
         ScenarioSpec {
-            spot_shocks: (-6..=6).map(|i| i as f64 * 0.05).collect(),
-            vol_shocks: (-4..=4).map(|i| i as f64 * 0.025).collect(),
+            spot_shocks: (-6..=6).map(|i| f64::from(i) * 5.0 / 100.0).collect(),
+            vol_shocks: (-4..=4).map(|i| f64::from(i) * 2.5 / 100.0).collect(),
             jump_shocks: vec![-0.2],
         }
     }
 }
 
+/// Why a relative spot or jump shock is refused (`None`: accepted).
+pub fn spot_shock_problem(x: f64) -> Option<&'static str> {
+    if !x.is_finite() {
+        Some("is not a finite number")
+    } else if x > -1.0 && x <= MAX_SPOT_SHOCK {
+        None
+    } else {
+        Some("is outside the accepted range: above -100% and at most +1000%")
+    }
+}
+
+/// Why an absolute vol shock is refused (`None`: accepted).
+pub fn vol_shock_problem(x: f64) -> Option<&'static str> {
+    if !x.is_finite() {
+        Some("is not a finite number")
+    } else if x.abs() <= MAX_VOL_SHOCK {
+        None
+    } else {
+        Some("is outside the accepted range: -100 to +100 vol points")
+    }
+}
+
+/// A refused scenario definition.
+#[derive(Debug, Clone, PartialEq, thiserror::Error)]
+#[error("{list}: {problem}")]
+pub struct SpecError {
+    /// Which list: `spot shocks`, `vol shocks` or `jump shocks`.
+    pub list: &'static str,
+    /// What is wrong.
+    pub problem: String,
+}
+
+impl ScenarioSpec {
+    /// Validates and builds a scenario definition. Spot and vol shocks are
+    /// sorted ascending; jump shocks keep their order.
+    ///
+    /// # Errors
+    /// [`SpecError`] for an empty spot or vol list, more than [`MAX_SHOCKS`]
+    /// values in a list, a value repeated, or a value outside its range
+    /// ([`spot_shock_problem`], [`vol_shock_problem`]).
+    pub fn new(
+        mut spot_shocks: Vec<f64>,
+        mut vol_shocks: Vec<f64>,
+        jump_shocks: Vec<f64>,
+    ) -> Result<ScenarioSpec, SpecError> {
+        let check = |list: &'static str,
+                     xs: &[f64],
+                     allow_empty: bool,
+                     scale: (f64, &str),
+                     problem: fn(f64) -> Option<&'static str>|
+         -> Result<(), SpecError> {
+            let err = |problem: String| SpecError { list, problem };
+            if xs.is_empty() && !allow_empty {
+                return Err(err("the list is empty".into()));
+            }
+            if xs.len() > MAX_SHOCKS {
+                return Err(err(format!(
+                    "{} values, at most {MAX_SHOCKS} are accepted",
+                    xs.len()
+                )));
+            }
+            for (i, &x) in xs.iter().enumerate() {
+                let shown = format!("{}{}", short(x * scale.0), scale.1);
+                if let Some(p) = problem(x) {
+                    return Err(err(format!("{shown} {p}")));
+                }
+                if xs[..i].contains(&x) {
+                    return Err(err(format!("{shown} is given twice")));
+                }
+            }
+            Ok(())
+        };
+        check(
+            "spot shocks",
+            &spot_shocks,
+            false,
+            (100.0, "%"),
+            spot_shock_problem,
+        )?;
+        check(
+            "vol shocks",
+            &vol_shocks,
+            false,
+            (100.0, " vol points"),
+            vol_shock_problem,
+        )?;
+        check(
+            "jump shocks",
+            &jump_shocks,
+            true,
+            (100.0, "%"),
+            spot_shock_problem,
+        )?;
+        for x in spot_shocks.iter_mut().chain(vol_shocks.iter_mut()) {
+            *x += 0.0; // -0 is 0
+        }
+        spot_shocks.sort_by(f64::total_cmp);
+        vol_shocks.sort_by(f64::total_cmp);
+        Ok(ScenarioSpec {
+            spot_shocks,
+            vol_shocks,
+            jump_shocks,
+        })
+    }
+
+    fn cells(&self) -> usize {
+        self.spot_shocks.len() * self.vol_shocks.len()
+    }
+}
+
+/// Short form of a number for messages: 12 significant digits (so a shock
+/// of 0.07 reads 7%, not 7.000000000000001%), scientific when very large or
+/// small.
+fn short(x: f64) -> String {
+    let x = format!("{x:.11e}").parse::<f64>().unwrap_or(x);
+    if x != 0.0 && (x.abs() >= 1e9 || x.abs() < 1e-6) {
+        format!("{x:e}")
+    } else {
+        let s = zmij::Buffer::new().format(x).to_string();
+        match s.strip_suffix(".0") {
+            Some(integer) => integer.to_string(),
+            None => s,
+        }
+    }
+}
+
+/// One aggregated scenario P&L: the sum over the rows that could be
+/// revalued, and how many could not.
+#[derive(Debug, Clone, Copy, Default, PartialEq)]
+pub struct Cell {
+    /// Sum of `w (V_shocked - V_base)` over the rows revalued.
+    pub pnl: f64,
+    /// Rows of the group excluded from `pnl` (their revaluation failed).
+    pub rows_failed: u64,
+}
+
+/// Aggregated Greeks at one spot shock (vol unshocked).
+#[derive(Debug, Clone, Copy, Default, PartialEq)]
+pub struct CurvePoint {
+    /// Sum of `w delta S'` at the shocked spot `S'`.
+    pub delta_cash: f64,
+    /// Sum of `w gamma S'^2 / 100`.
+    pub gamma_cash_1pct: f64,
+    /// Sum of `w vega / 100`.
+    pub vega_1pt: f64,
+    /// Rows of the group excluded from this point.
+    pub rows_failed: u64,
+}
+
 /// Results of the scenario runs for one group (an underlying or the book).
 #[derive(Debug, Clone, PartialEq)]
 pub struct GroupScenarios {
-    /// P&L on the grid, `pnl[i][j]` for spot shock `i` and vol shock `j`.
-    pub grid: Vec<Vec<f64>>,
+    /// P&L on the grid, `grid[i][j]` for spot shock `i` and vol shock `j`.
+    pub grid: Vec<Vec<Cell>>,
     /// P&L of each jump scenario: the model mean jump first, then the user sizes.
-    pub jumps: Vec<f64>,
-    /// Weighted mean of `k` over the group's positions (for display).
+    pub jumps: Vec<Cell>,
+    /// Weighted mean of `k` over the group's positions (weights `|w|`, for display).
     pub mean_model_jump: f64,
-    /// Cash delta, gamma and vega per vol point at each spot shock (vol unshocked).
-    pub greeks_vs_spot: Vec<(f64, f64, f64)>,
+    /// Cash delta, gamma and vega per vol point at each spot shock.
+    pub greeks_vs_spot: Vec<CurvePoint>,
 }
 
-/// The whole risk report: exposures and scenarios by underlying and for the book.
+/// Which scenario a [`ScenarioFailure`] belongs to.
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub enum ScenarioKind {
+    /// A cell of the spot x vol grid.
+    Grid {
+        /// Relative spot shock.
+        spot_shock: f64,
+        /// Absolute vol shock.
+        vol_shock: f64,
+    },
+    /// A point of the Greeks-against-spot curves.
+    GreeksVsSpot {
+        /// Relative spot shock.
+        spot_shock: f64,
+    },
+    /// The jump by the row's own model mean jump `k`.
+    ModelMeanJump {
+        /// The row's `k`.
+        jump_size: f64,
+    },
+    /// A jump by a `--jump-shock` size.
+    GivenJump {
+        /// The relative jump.
+        jump_size: f64,
+    },
+}
+
+impl ScenarioKind {
+    /// Name as written in the `scenario` column.
+    pub fn name(&self) -> &'static str {
+        match self {
+            ScenarioKind::Grid { .. } => "grid",
+            ScenarioKind::GreeksVsSpot { .. } => "greeks_vs_spot",
+            ScenarioKind::ModelMeanJump { .. } => "model_mean_jump",
+            ScenarioKind::GivenJump { .. } => "given_jump",
+        }
+    }
+}
+
+impl fmt::Display for ScenarioKind {
+    fn fmt(&self, f: &mut fmt::Formatter<'_>) -> fmt::Result {
+        let pct = |x: f64| {
+            let sign = if x > 0.0 { "+" } else { "" };
+            format!("{sign}{}%", short(x * 100.0))
+        };
+        match *self {
+            ScenarioKind::Grid {
+                spot_shock,
+                vol_shock,
+            } => write!(
+                f,
+                "grid: spot {}, vol {} points",
+                pct(spot_shock),
+                short(vol_shock * 100.0)
+            ),
+            ScenarioKind::GreeksVsSpot { spot_shock } => {
+                write!(f, "Greeks at spot {}", pct(spot_shock))
+            }
+            ScenarioKind::ModelMeanJump { jump_size } => {
+                write!(f, "model mean jump ({})", pct(jump_size))
+            }
+            ScenarioKind::GivenJump { jump_size } => write!(f, "jump {}", pct(jump_size)),
+        }
+    }
+}
+
+/// A row's scenario revaluation that failed: the row is excluded from that
+/// one cell (or curve point).
+#[derive(Debug, Clone, PartialEq)]
+pub struct ScenarioFailure {
+    /// 1-based data row.
+    pub row: u64,
+    /// Line of the record in the input.
+    pub line: u64,
+    /// Row id.
+    pub id: String,
+    /// The row's underlying.
+    pub underlying: String,
+    /// The scenario.
+    pub scenario: ScenarioKind,
+    /// Why the shocked copy could not be revalued.
+    pub reason: String,
+}
+
+/// A row that could not be priced, listed in the report and excluded from
+/// every total.
+#[derive(Debug, Clone, PartialEq)]
+pub struct FailedRow {
+    /// 1-based data row.
+    pub row: u64,
+    /// Line of the record in the input.
+    pub line: u64,
+    /// Row id (lossy-decoded for display), or the row number when the book
+    /// has no `id` column.
+    pub id: String,
+    /// Status text.
+    pub status: String,
+}
+
+/// Sums for one group while accumulating.
 #[derive(Debug, Clone)]
-pub struct RiskReport {
-    /// Scenario definitions.
-    pub spec: ScenarioSpec,
-    /// Per underlying (sorted by name).
-    pub by_underlying: BTreeMap<String, (Exposure, GroupScenarios)>,
-    /// Book total.
-    pub book: (Exposure, GroupScenarios),
-    /// Positions whose vol was floored at 0 in some scenario.
-    pub vol_floored: u64,
+struct GroupAcc {
+    exposure: Exposure,
+    grid: Vec<Cell>,
+    jumps: Vec<Cell>,
+    curve: Vec<CurvePoint>,
+    abs_weight_k: f64,
+    abs_weight: f64,
+}
+
+impl GroupAcc {
+    fn new(spec: &ScenarioSpec) -> GroupAcc {
+        GroupAcc {
+            exposure: Exposure::default(),
+            grid: vec![Cell::default(); spec.cells()],
+            jumps: vec![Cell::default(); spec.jump_shocks.len() + 1],
+            curve: vec![CurvePoint::default(); spec.spot_shocks.len()],
+            abs_weight_k: 0.0,
+            abs_weight: 0.0,
+        }
+    }
+
+    fn add_row(&mut self, r: &RowScenarios) {
+        self.exposure = self.exposure.add(&r.exposure);
+        let add_cell = |acc: &mut Cell, x: &Option<f64>| match x {
+            Some(v) => acc.pnl += v,
+            None => acc.rows_failed += 1,
+        };
+        for (a, x) in self.grid.iter_mut().zip(&r.grid) {
+            add_cell(a, x);
+        }
+        for (a, x) in self.jumps.iter_mut().zip(&r.jumps) {
+            add_cell(a, x);
+        }
+        for (a, x) in self.curve.iter_mut().zip(&r.curve) {
+            match x {
+                Some((d, g, v)) => {
+                    a.delta_cash += d;
+                    a.gamma_cash_1pct += g;
+                    a.vega_1pt += v;
+                }
+                None => a.rows_failed += 1,
+            }
+        }
+        self.abs_weight_k += r.abs_weight * r.k;
+        self.abs_weight += r.abs_weight;
+    }
+
+    fn merge(&mut self, o: &GroupAcc) {
+        self.exposure = self.exposure.add(&o.exposure);
+        for (a, b) in self
+            .grid
+            .iter_mut()
+            .zip(&o.grid)
+            .chain(self.jumps.iter_mut().zip(&o.jumps))
+        {
+            a.pnl += b.pnl;
+            a.rows_failed += b.rows_failed;
+        }
+        for (a, b) in self.curve.iter_mut().zip(&o.curve) {
+            a.delta_cash += b.delta_cash;
+            a.gamma_cash_1pct += b.gamma_cash_1pct;
+            a.vega_1pt += b.vega_1pt;
+            a.rows_failed += b.rows_failed;
+        }
+        self.abs_weight_k += o.abs_weight_k;
+        self.abs_weight += o.abs_weight;
+    }
+
+    fn finish(self, spec: &ScenarioSpec) -> (Exposure, GroupScenarios) {
+        let nv = spec.vol_shocks.len();
+        let grid = self.grid.chunks(nv.max(1)).map(<[Cell]>::to_vec).collect();
+        let mean_model_jump = if self.abs_weight > 0.0 {
+            self.abs_weight_k / self.abs_weight
+        } else {
+            0.0
+        };
+        (
+            self.exposure,
+            GroupScenarios {
+                grid,
+                jumps: self.jumps,
+                mean_model_jump,
+                greeks_vs_spot: self.curve,
+            },
+        )
+    }
+}
+
+/// One row's contributions; `None` where the revaluation failed.
+struct RowScenarios {
+    exposure: Exposure,
+    grid: Vec<Option<f64>>,
+    jumps: Vec<Option<f64>>,
+    curve: Vec<Option<(f64, f64, f64)>>,
+    abs_weight: f64,
+    k: f64,
 }
 
 fn revalue(c: &Contract, spot_shock: f64, vol_shock: f64) -> Result<Greeks, String> {
@@ -174,116 +670,389 @@ fn revalue(c: &Contract, spot_shock: f64, vol_shock: f64) -> Result<Greeks, Stri
         (c.vol + vol_shock).max(0.0),
         c.jumps,
     )
-    .map_err(|e| e.to_string())?;
+    .map_err(|e| format!("shocked contract: {e}"))?;
     series::price(&shocked)
         .map(|r| r.greeks)
-        .map_err(|e| e.to_string())
+        .map_err(|e| format!("series engine: {e}"))
 }
 
-/// Per-position scenario results, in the same shapes as [`GroupScenarios`].
-fn position_scenarios(p: &Position, spec: &ScenarioSpec) -> Result<GroupScenarios, String> {
-    let w = p.weight();
-    let v0 = p.greeks.price;
-    let mut grid = Vec::with_capacity(spec.spot_shocks.len());
-    let mut greeks_vs_spot = Vec::with_capacity(spec.spot_shocks.len());
-    for &s in &spec.spot_shocks {
-        let mut row = Vec::with_capacity(spec.vol_shocks.len());
-        for &v in &spec.vol_shocks {
-            let g = revalue(&p.contract, s, v)?;
-            row.push(w * (g.price - v0));
-        }
-        grid.push(row);
-        let g = revalue(&p.contract, s, 0.0)?;
-        let spot = p.contract.spot * (1.0 + s);
-        greeks_vs_spot.push((
-            w * g.delta * spot,
-            w * g.gamma * spot * spot * 0.01,
-            w * g.vega * 0.01,
-        ));
-    }
-    let k = p.contract.jumps.k();
-    let mut jumps = vec![w * (revalue(&p.contract, k, 0.0)?.price - v0)];
-    for &j in &spec.jump_shocks {
-        jumps.push(w * (revalue(&p.contract, j, 0.0)?.price - v0));
-    }
-    Ok(GroupScenarios {
-        grid,
-        jumps,
-        mean_model_jump: k,
-        greeks_vs_spot,
-    })
+/// Accumulated risk of part of a book (one chunk while streaming) or of the
+/// whole book once the chunks are merged. See the module documentation.
+#[derive(Debug, Clone, Default)]
+pub struct RiskAccumulator {
+    groups: BTreeMap<String, GroupAcc>,
+    book: Option<GroupAcc>,
+    vol_floored: u64,
+    failed_rows: u64,
+    first_failed_rows: Vec<FailedRow>,
+    scenario_failures: u64,
+    /// Of a chunk: all its failures (streamed by the caller before merging).
+    /// Of a merged total: the first [`MAX_LISTED`].
+    failures: Vec<ScenarioFailure>,
 }
 
-fn add_scenarios(a: &mut GroupScenarios, b: &GroupScenarios) {
-    for (ra, rb) in a.grid.iter_mut().zip(&b.grid) {
-        for (x, y) in ra.iter_mut().zip(rb) {
-            *x += y;
+impl ChunkState for RiskAccumulator {
+    fn row_failed(&mut self, f: &FailedRecord<'_>) {
+        self.failed_rows += 1;
+        if self.first_failed_rows.len() < MAX_LISTED {
+            let id = match f.id {
+                Some(raw) => String::from_utf8_lossy(raw).trim().to_string(),
+                None => f.row.to_string(),
+            };
+            self.first_failed_rows.push(FailedRow {
+                row: f.row,
+                line: f.line,
+                id,
+                status: f.status.to_string(),
+            });
         }
     }
-    for (x, y) in a.jumps.iter_mut().zip(&b.jumps) {
-        *x += y;
+}
+
+impl RiskAccumulator {
+    /// Adds one position: its exposure (from [`exposure_of`]) and its full
+    /// revaluation in every scenario. A failed revaluation excludes the row
+    /// from that cell only and is recorded as a [`ScenarioFailure`].
+    pub fn add(&mut self, spec: &ScenarioSpec, p: &PositionRef, exposure: &Exposure) {
+        let w = p.weight;
+        let v0 = p.greeks.price;
+        let c = &p.contract;
+        let mut failures = Vec::new();
+        let mut fail = |scenario: ScenarioKind, reason: String| {
+            failures.push((scenario, reason));
+        };
+        let pnl = |shocked: Result<Greeks, String>| -> Result<f64, String> {
+            let x = w * (shocked?.price - v0);
+            if x.is_finite() {
+                Ok(x)
+            } else {
+                Err("P&L is not finite: quantity x multiplier x price change overflows".into())
+            }
+        };
+        let zero_vol = spec.vol_shocks.iter().position(|v| *v == 0.0);
+        let mut grid = Vec::with_capacity(spec.cells());
+        let mut curve = Vec::with_capacity(spec.spot_shocks.len());
+        for &s in &spec.spot_shocks {
+            let mut at_zero = None;
+            for (j, &v) in spec.vol_shocks.iter().enumerate() {
+                let g = revalue(c, s, v);
+                if Some(j) == zero_vol {
+                    at_zero = Some(g.clone());
+                }
+                match pnl(g) {
+                    Ok(x) => grid.push(Some(x)),
+                    Err(reason) => {
+                        grid.push(None);
+                        fail(
+                            ScenarioKind::Grid {
+                                spot_shock: s,
+                                vol_shock: v,
+                            },
+                            reason,
+                        );
+                    }
+                }
+            }
+            let g = at_zero.unwrap_or_else(|| revalue(c, s, 0.0));
+            let point = g.and_then(|g| {
+                let spot = c.spot * (1.0 + s);
+                let point = (
+                    w * g.delta * spot,
+                    w * (g.gamma * spot) * spot * 0.01,
+                    w * g.vega * 0.01,
+                );
+                if point.0.is_finite() && point.1.is_finite() && point.2.is_finite() {
+                    Ok(point)
+                } else {
+                    Err("cash delta, cash gamma or vega is not finite (overflow)".to_string())
+                }
+            });
+            match point {
+                Ok(x) => curve.push(Some(x)),
+                Err(reason) => {
+                    curve.push(None);
+                    fail(ScenarioKind::GreeksVsSpot { spot_shock: s }, reason);
+                }
+            }
+        }
+        let k = c.jumps.k();
+        let mut jumps = Vec::with_capacity(spec.jump_shocks.len() + 1);
+        for (i, size) in std::iter::once(k)
+            .chain(spec.jump_shocks.iter().copied())
+            .enumerate()
+        {
+            match pnl(revalue(c, size, 0.0)) {
+                Ok(x) => jumps.push(Some(x)),
+                Err(reason) => {
+                    jumps.push(None);
+                    let scenario = if i == 0 {
+                        ScenarioKind::ModelMeanJump { jump_size: size }
+                    } else {
+                        ScenarioKind::GivenJump { jump_size: size }
+                    };
+                    fail(scenario, reason);
+                }
+            }
+        }
+        let min_vol_shock = spec.vol_shocks.iter().copied().fold(0.0, f64::min);
+        if c.vol + min_vol_shock < 0.0 {
+            self.vol_floored += 1;
+        }
+        let row = RowScenarios {
+            exposure: *exposure,
+            grid,
+            jumps,
+            curve,
+            abs_weight: w.abs(),
+            k,
+        };
+        match self.groups.get_mut(p.underlying) {
+            Some(g) => g.add_row(&row),
+            None => {
+                let mut g = GroupAcc::new(spec);
+                g.add_row(&row);
+                self.groups.insert(p.underlying.to_string(), g);
+            }
+        }
+        self.book
+            .get_or_insert_with(|| GroupAcc::new(spec))
+            .add_row(&row);
+        self.scenario_failures += failures.len() as u64;
+        for (scenario, reason) in failures {
+            self.failures.push(ScenarioFailure {
+                row: p.row,
+                line: p.line,
+                id: p.id.to_string(),
+                underlying: p.underlying.to_string(),
+                scenario,
+                reason,
+            });
+        }
     }
-    for (x, y) in a.greeks_vs_spot.iter_mut().zip(&b.greeks_vs_spot) {
-        x.0 += y.0;
-        x.1 += y.1;
-        x.2 += y.2;
+
+    /// The scenario failures recorded (of a chunk: all of them, in row
+    /// order), for the caller to stream out before merging the chunk.
+    pub fn scenario_failure_list(&self) -> &[ScenarioFailure] {
+        &self.failures
+    }
+
+    /// Adds `o` (the next chunk, in chunk order) to `self`. Lists are kept up
+    /// to [`MAX_LISTED`] entries; counts are complete.
+    pub fn merge(&mut self, mut o: RiskAccumulator) {
+        for (name, g) in std::mem::take(&mut o.groups) {
+            match self.groups.get_mut(&name) {
+                Some(acc) => acc.merge(&g),
+                None => {
+                    self.groups.insert(name, g);
+                }
+            }
+        }
+        match (&mut self.book, o.book.take()) {
+            (Some(acc), Some(b)) => acc.merge(&b),
+            (None, Some(b)) => self.book = Some(b),
+            _ => {}
+        }
+        self.vol_floored += o.vol_floored;
+        self.failed_rows += o.failed_rows;
+        let room = MAX_LISTED.saturating_sub(self.first_failed_rows.len());
+        self.first_failed_rows
+            .extend(o.first_failed_rows.into_iter().take(room));
+        self.scenario_failures += o.scenario_failures;
+        let room = MAX_LISTED.saturating_sub(self.failures.len());
+        self.failures.extend(o.failures.into_iter().take(room));
+    }
+
+    /// The report.
+    pub fn finish(self, spec: ScenarioSpec) -> RiskReport {
+        let by_underlying = self
+            .groups
+            .into_iter()
+            .map(|(k, g)| (k, g.finish(&spec)))
+            .collect();
+        let book = self
+            .book
+            .unwrap_or_else(|| GroupAcc::new(&spec))
+            .finish(&spec);
+        let mut first_scenario_failures = self.failures;
+        first_scenario_failures.truncate(MAX_LISTED);
+        RiskReport {
+            spec,
+            by_underlying,
+            book,
+            vol_floored: self.vol_floored,
+            failed_rows: self.failed_rows,
+            first_failed_rows: self.first_failed_rows,
+            scenario_failures: self.scenario_failures,
+            first_scenario_failures,
+        }
     }
 }
 
-fn empty(spec: &ScenarioSpec) -> GroupScenarios {
-    GroupScenarios {
-        grid: vec![vec![0.0; spec.vol_shocks.len()]; spec.spot_shocks.len()],
-        jumps: vec![0.0; spec.jump_shocks.len() + 1],
-        mean_model_jump: 0.0,
-        greeks_vs_spot: vec![(0.0, 0.0, 0.0); spec.spot_shocks.len()],
+/// The whole risk report: exposures and scenarios by underlying and for the book.
+#[derive(Debug, Clone)]
+pub struct RiskReport {
+    /// Scenario definitions.
+    pub spec: ScenarioSpec,
+    /// Per underlying (sorted by name).
+    pub by_underlying: BTreeMap<String, (Exposure, GroupScenarios)>,
+    /// Book total.
+    pub book: (Exposure, GroupScenarios),
+    /// Positions whose vol was floored at 0 in some scenario.
+    pub vol_floored: u64,
+    /// Rows that could not be priced (excluded from everything).
+    pub failed_rows: u64,
+    /// The first [`MAX_LISTED`] of them, in row order.
+    pub first_failed_rows: Vec<FailedRow>,
+    /// Scenario revaluations that failed (each excludes one row from one cell).
+    pub scenario_failures: u64,
+    /// The first [`MAX_LISTED`] of them, in row order.
+    pub first_scenario_failures: Vec<ScenarioFailure>,
+}
+
+/// One group of a report, in output order.
+#[derive(Debug, Clone, Copy)]
+pub struct Group<'a> {
+    /// The underlying, or `None` for the book level.
+    pub underlying: Option<&'a str>,
+    /// Its exposure.
+    pub exposure: &'a Exposure,
+    /// Its scenarios.
+    pub scenarios: &'a GroupScenarios,
+}
+
+impl RiskReport {
+    /// The underlyings in name order, then the book.
+    pub fn groups(&self) -> Vec<Group<'_>> {
+        self.by_underlying
+            .iter()
+            .map(|(k, (e, s))| Group {
+                underlying: Some(k.as_str()),
+                exposure: e,
+                scenarios: s,
+            })
+            .chain(std::iter::once(Group {
+                underlying: None,
+                exposure: &self.book.0,
+                scenarios: &self.book.1,
+            }))
+            .collect()
+    }
+
+    /// Every aggregate that is not a finite number (a sum of finite
+    /// contributions that overflowed), as `file group: what`. Empty when all
+    /// are finite.
+    pub fn aggregate_problems(&self) -> Vec<String> {
+        let mut out = Vec::new();
+        for g in self.groups() {
+            let name = match g.underlying {
+                Some(u) => format!("underlying '{u}'"),
+                None => "the book".to_string(),
+            };
+            let bad = g.exposure.non_finite(g.underlying.is_none());
+            if !bad.is_empty() {
+                out.push(format!("totals.csv, {name}: {} not finite", bad.join(", ")));
+            }
+            let s = g.scenarios;
+            for (i, ds) in self.spec.spot_shocks.iter().enumerate() {
+                for (j, dv) in self.spec.vol_shocks.iter().enumerate() {
+                    if !s.grid[i][j].pnl.is_finite() {
+                        out.push(format!(
+                            "scenarios.csv, {name}, {}: pnl not finite",
+                            ScenarioKind::Grid {
+                                spot_shock: *ds,
+                                vol_shock: *dv
+                            }
+                        ));
+                    }
+                }
+                let p = &s.greeks_vs_spot[i];
+                if !(p.delta_cash.is_finite()
+                    && p.gamma_cash_1pct.is_finite()
+                    && p.vega_1pt.is_finite())
+                {
+                    out.push(format!(
+                        "greeks_vs_spot.csv, {name}, spot shock {}%: not finite",
+                        short(ds * 100.0)
+                    ));
+                }
+            }
+            if !s.mean_model_jump.is_finite() || !s.jumps[0].pnl.is_finite() {
+                out.push(format!(
+                    "jump_scenarios.csv, {name}, model mean jump: not finite"
+                ));
+            }
+            for (k, j) in self.spec.jump_shocks.iter().enumerate() {
+                if !s.jumps[k + 1].pnl.is_finite() {
+                    out.push(format!(
+                        "jump_scenarios.csv, {name}, jump {}%: pnl not finite",
+                        short(j * 100.0)
+                    ));
+                }
+            }
+        }
+        out
     }
 }
 
-/// Builds the report. `positions` may be in any order; failed rows are not
-/// positions (the caller lists them separately).
+/// Builds the report from positions held in memory: sorted by row, added in
+/// chunks of [`CHUNK_ROWS`] positions merged in order, like the streaming
+/// command (whose chunks also count failed rows, so its digits agree when no
+/// row failed). `positions` may be in any order; failed rows are not positions.
 ///
 /// # Errors
-/// A message naming the row if a shocked contract cannot be priced (a spot
-/// shock of -100% or below, say).
+/// A message naming the row when a position's exposure is not finite.
 pub fn build(mut positions: Vec<Position>, spec: ScenarioSpec) -> Result<RiskReport, String> {
     positions.sort_by_key(|p| p.row);
-    let per: Vec<Result<GroupScenarios, String>> = positions
-        .par_iter()
-        .map(|p| position_scenarios(p, &spec))
-        .collect();
-    let mut by_underlying: BTreeMap<String, (Exposure, GroupScenarios, f64, f64)> = BTreeMap::new();
-    let mut book = (Exposure::default(), empty(&spec), 0.0, 0.0);
-    let mut vol_floored = 0;
-    let min_vol_shock = spec.vol_shocks.iter().cloned().fold(0.0, f64::min);
-    for (p, sc) in positions.iter().zip(per) {
-        let sc =
-            sc.map_err(|e| format!("row {} ({}): scenario repricing failed: {e}", p.row, p.id))?;
-        let e = Exposure::of(p);
-        if p.contract.vol + min_vol_shock < 0.0 {
-            vol_floored += 1;
+    let mut total = RiskAccumulator::default();
+    for chunk in positions.chunks(CHUNK_ROWS) {
+        let mut acc = RiskAccumulator::default();
+        for p in chunk {
+            let p = p.as_ref();
+            let e = exposure_of(&p).map_err(|e| format!("row {} ({}): {e}", p.row, p.id))?;
+            acc.add(&spec, &p, &e);
         }
-        let w = p.weight().abs();
-        let entry = by_underlying
-            .entry(p.underlying.clone())
-            .or_insert_with(|| (Exposure::default(), empty(&spec), 0.0, 0.0));
-        for acc in [&mut *entry, &mut book] {
-            acc.0 = acc.0.add(&e);
-            add_scenarios(&mut acc.1, &sc);
-            acc.2 += w * sc.mean_model_jump;
-            acc.3 += w;
-        }
+        total.merge(acc);
     }
-    let finish = |(e, mut s, kw, w): (Exposure, GroupScenarios, f64, f64)| {
-        s.mean_model_jump = if w > 0.0 { kw / w } else { 0.0 };
-        (e, s)
-    };
-    Ok(RiskReport {
-        spec,
-        by_underlying: by_underlying
-            .into_iter()
-            .map(|(k, v)| (k, finish(v)))
-            .collect(),
-        book: finish(book),
-        vol_floored,
-    })
+    Ok(total.finish(spec))
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn spec_refuses_bad_values() {
+        let d = ScenarioSpec::default();
+        assert!(ScenarioSpec::new(d.spot_shocks.clone(), d.vol_shocks.clone(), vec![-0.2]).is_ok());
+        let bad = [
+            (vec![], vec![0.0], vec![], "empty"),
+            (vec![0.1, 0.1], vec![0.0], vec![], "twice"),
+            (vec![f64::NAN], vec![0.0], vec![], "not a finite number"),
+            (vec![1e306], vec![0.0], vec![], "outside"),
+            (vec![-1.0], vec![0.0], vec![], "outside"),
+            (vec![0.0], vec![9.95], vec![], "-100 to +100 vol points"),
+            (vec![0.0], vec![0.0], vec![f64::INFINITY], "not a finite"),
+            (vec![0.0], vec![0.0], vec![0.1, 0.1], "twice"),
+        ];
+        for (s, v, j, want) in bad {
+            let e = ScenarioSpec::new(s.clone(), v.clone(), j.clone()).unwrap_err();
+            assert!(e.to_string().contains(want), "{s:?} {v:?} {j:?}: {e}");
+        }
+        let e = ScenarioSpec::new(vec![0.0; 101], vec![0.0], vec![]).unwrap_err();
+        assert!(e.to_string().contains("at most 100"), "{e}");
+    }
+
+    #[test]
+    fn short_numbers_stay_short() {
+        assert_eq!(short(1e308), "1e308");
+        assert_eq!(short(99500.0), "99500");
+        assert_eq!(short(0.05), "0.05");
+        assert_eq!(short(-20.0), "-20");
+        assert_eq!(short(0.07 * 100.0), "7");
+        let k = ScenarioKind::Grid {
+            spot_shock: 0.05,
+            vol_shock: -0.1,
+        };
+        assert_eq!(k.to_string(), "grid: spot +5%, vol -10 points");
+    }
 }

@@ -14,7 +14,9 @@ pub mod schema;
 pub mod streams;
 pub mod writer;
 
-pub use pipeline::{run_book, BookSummary, PipelineOptions};
+pub use pipeline::{
+    run_book, run_book_with_state, BookSummary, ChunkState, FailedRecord, PipelineOptions,
+};
 pub use reader::{parse_row, BookRow, RowError};
 pub use schema::{Schema, SchemaError};
 pub use streams::StreamKeys;

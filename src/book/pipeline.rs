@@ -6,6 +6,13 @@
 //! them. At most a few chunks per worker are in flight, so memory is flat
 //! whatever the size of the book. Chunking never changes a result: rows are
 //! processed independently.
+//!
+//! Commands that aggregate (`risk`) use [`run_book_with_state`]: each chunk
+//! gets a fresh state ([`ChunkState`]) that its rows add to in row order,
+//! and the writer thread hands the finished states to a merge function in
+//! chunk order. Chunks are a fixed number of records whatever the thread
+//! count, so floating-point sums come out with the same digits on any
+//! number of threads.
 
 use super::reader::{parse_row, BookRow, RowError};
 use super::records::{Record, RecordReader};
@@ -65,6 +72,30 @@ struct Chunk {
     records: Vec<(Record, u64)>,
 }
 
+/// Per-chunk state of [`run_book_with_state`]: each chunk starts from
+/// `Default` and is told about its failed rows.
+pub trait ChunkState: Default + Send {
+    /// Called for every row of the chunk written with an error status (a row
+    /// that did not parse, or whose processor returned an error), in row order.
+    fn row_failed(&mut self, _failed: &FailedRecord<'_>) {}
+}
+
+impl ChunkState for () {}
+
+/// A row written with an error status, as [`ChunkState::row_failed`] sees it.
+#[derive(Debug, Clone, Copy)]
+pub struct FailedRecord<'a> {
+    /// 1-based data row.
+    pub row: u64,
+    /// Line of the record in the input.
+    pub line: u64,
+    /// The raw `id` field, when the book has an `id` column and the record
+    /// has that field (any bytes: it may not be UTF-8).
+    pub id: Option<&'a [u8]>,
+    /// The status text written (`error: line N: problem`).
+    pub status: &'a str,
+}
+
 /// Runs a book through `process`.
 ///
 /// `process` receives each row that parsed and validated, and appends every
@@ -87,6 +118,39 @@ where
     W: Write + Send,
     F: Fn(&BookRow, &mut RowWriter) -> Result<(), String> + Sync,
 {
+    run_book_with_state(
+        input,
+        output,
+        opts,
+        |row, w, _: &mut ()| process(row, w),
+        |()| Ok(()),
+    )
+}
+
+/// [`run_book`] with a per-chunk state: `process` also receives the state of
+/// its chunk (a fresh `S::default()` for every chunk of [`CHUNK_ROWS`]
+/// records), and the writer thread calls `merge` with each chunk's state in
+/// chunk order, after writing the chunk's rows. The chunking does not depend
+/// on the thread count, so a merge that adds up floating-point numbers gives
+/// the same digits on any number of threads.
+///
+/// # Errors
+/// As [`run_book`]; an error returned by `merge` stops the run like an
+/// output error.
+pub fn run_book_with_state<R, W, S, F, M>(
+    input: R,
+    output: W,
+    opts: &PipelineOptions,
+    process: F,
+    mut merge: M,
+) -> Result<BookSummary, BookError>
+where
+    R: Read + Send,
+    W: Write + Send,
+    S: ChunkState,
+    F: Fn(&BookRow, &mut RowWriter, &mut S) -> Result<(), String> + Sync,
+    M: FnMut(S) -> std::io::Result<()> + Send,
+{
     let mut reader = RecordReader::new(input);
     let mut header_record = Record::default();
     reader.read_record(&mut header_record)?;
@@ -106,7 +170,7 @@ where
     // flat whatever the book size.
     let max_in_flight = 4 * rayon::current_num_threads().max(1) + 2;
     let (token_tx, token_rx) = sync_channel::<()>(max_in_flight);
-    let (done_tx, done_rx) = std::sync::mpsc::channel::<(u64, ChunkResult)>();
+    let (done_tx, done_rx) = std::sync::mpsc::channel::<(u64, ChunkResult<S>)>();
     let (recycle_tx, recycle_rx) = sync_channel::<Vec<(Record, u64)>>(max_in_flight);
     // Output buffers are recycled too: fresh half-megabyte buffers would be
     // mapped and page-faulted anew for every chunk.
@@ -133,7 +197,7 @@ where
                         }
                     }
                     if io_error.is_none() {
-                        let written = out.write_all(&r.buf);
+                        let written = out.write_all(&r.buf).and_then(|()| merge(r.state));
                         let mut spent = r.buf;
                         spent.clear();
                         if let Ok(mut pool) = buffers.lock() {
@@ -224,23 +288,26 @@ where
 }
 
 /// What processing one chunk produced.
-struct ChunkResult {
+struct ChunkResult<S> {
     buf: Vec<u8>,
+    state: S,
     rows: u64,
     failed: u64,
     errors: Vec<String>,
 }
 
-fn process_chunk<F>(
+fn process_chunk<S, F>(
     chunk: &Chunk,
     schema: &Schema,
     columns: &[String],
     process: &F,
     mut buf: Vec<u8>,
-) -> ChunkResult
+) -> ChunkResult<S>
 where
-    F: Fn(&BookRow, &mut RowWriter) -> Result<(), String> + Sync,
+    S: ChunkState,
+    F: Fn(&BookRow, &mut RowWriter, &mut S) -> Result<(), String> + Sync,
 {
+    let mut state = S::default();
     buf.reserve(chunk.len * 320);
     let mut failed = 0;
     let mut errors = Vec::new();
@@ -262,7 +329,7 @@ where
         let echo = buf.len();
         let outcome = parse_row(schema, rec, row, *line).and_then(|r| {
             let mut w = RowWriter::new(&mut buf);
-            let done = process(&r, &mut w);
+            let done = process(&r, &mut w, &mut state);
             // The safety net under every command: no NaN or inf in an ok row.
             let non_finite = w.non_finite();
             done.and_then(|()| match non_finite {
@@ -285,7 +352,14 @@ where
                 let mut w = RowWriter::new(&mut buf);
                 w.push_empty(columns.len() - 1);
                 let msg = e.to_string();
-                w.push_str(&format!("error: {msg}"));
+                let status = format!("error: {msg}");
+                w.push_str(&status);
+                state.row_failed(&FailedRecord {
+                    row,
+                    line: *line,
+                    id: schema.id.and_then(|i| rec.get(i)),
+                    status: &status,
+                });
                 if errors.len() < MAX_REPORTED_ERRORS {
                     errors.push(msg);
                 }
@@ -295,6 +369,7 @@ where
     }
     ChunkResult {
         buf,
+        state,
         rows: chunk.len as u64,
         failed,
         errors,

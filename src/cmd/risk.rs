@@ -1,25 +1,30 @@
 //! `saltus risk`: exposures by underlying, full-revaluation scenario P&L,
 //! CSV files and a self-contained HTML page.
+//!
+//! The options are turned into a validated [`ScenarioSpec`] before any work.
+//! The book streams through the pipeline once: positions.csv and
+//! scenario_failures.csv are written as it goes, and only the per-underlying
+//! accumulators ([`RiskAccumulator`], merged in chunk order) stay in memory.
 
 use super::output::OutputDir;
 use super::{open_input, report_rows};
-use anyhow::{bail, Context, Result};
-use saltus::book::{run_book, PipelineOptions};
+use anyhow::{anyhow, bail, Context, Result};
+use saltus::book::{run_book_with_state, PipelineOptions};
 use saltus::greeks::DESK_COLUMNS;
-use saltus::report::{self, FailedRow};
-use saltus::risk::{self, Position, ScenarioSpec};
+use saltus::report::{self, ScenarioFailureWriter, SCENARIO_FAILURES_FILE};
+use saltus::risk::{self, PositionRef, RiskAccumulator, ScenarioSpec};
 use saltus::series;
 use std::fs::File;
-use std::io::BufWriter;
+use std::io::{BufWriter, Write};
 use std::path::PathBuf;
 use std::process::ExitCode;
-use std::sync::Mutex;
 use std::time::Instant;
 
 /// The files of a report: an existing output directory holding anything
 /// else is refused, since it is replaced as a whole.
-const REPORT_FILES: [&str; 6] = [
+const REPORT_FILES: [&str; 7] = [
     "positions.csv",
+    SCENARIO_FAILURES_FILE,
     "totals.csv",
     "scenarios.csv",
     "jump_scenarios.csv",
@@ -32,19 +37,34 @@ const REPORT_FILES: [&str; 6] = [
 #[command(after_help = concat!(
     columns_read!(),
     "Writes into DIR (all files of a run or none: they are written into a hidden staging \
-directory beside DIR, which replaces DIR as a whole when the run completes):\n  \
-positions.csv       every input row echoed, then price, delta, gamma, vega_1pt, theta_1d, rho_1pct, \
+directory beside DIR, which replaces DIR as a whole when the run completes; an existing DIR \
+holding any other file is refused, never replaced):\n  \
+positions.csv          every input row echoed, then price, delta, gamma, vega_1pt, theta_1d, rho_1pct, \
 div_rho_1pct, d_jump_rate, d_jump_mean_1pct, d_jump_vol_1pct, position_value, status\n  \
-totals.csv          exposures by underlying and for the book ((book) row), desk units\n  \
-scenarios.csv       full-revaluation P&L on the spot x vol grid\n  \
-jump_scenarios.csv  P&L of an instantaneous jump by the model mean jump and by --jump-shock\n  \
-greeks_vs_spot.csv  cash delta, cash gamma and vega at each spot shock\n  \
-report.html         all of the above with SVG charts, self-contained\n\
-An existing DIR holding any other file is refused, never replaced.\n\
-Positions are quantity x multiplier and grouped by `underlying`.\n\
-Rows that fail keep their status in positions.csv, are listed in the report and excluded from \
-every total. The priced positions are held in memory for the scenarios.\n\
-Exit codes: 0 every row priced; 1 some rows failed; ",
+totals.csv             underlying, positions, value, delta, delta_cash, gamma, gamma_cash_1pct, vega_1pt, \
+theta_1d, rho_1pct, div_rho_1pct, d_jump_rate, d_jump_mean_1pct, d_jump_vol_1pct, level, status \
+(desk units; one row per underlying, then the book row)\n  \
+scenarios.csv          underlying, spot_shock, vol_shock, pnl, level, rows_failed, status: \
+full-revaluation P&L on the spot x vol grid\n  \
+jump_scenarios.csv     underlying, scenario, jump_size, pnl, level, rows_failed, status: an instantaneous \
+jump by the model mean jump and by each --jump-shock\n  \
+greeks_vs_spot.csv     underlying, spot_shock, delta_cash, gamma_cash_1pct, vega_1pt, level, rows_failed, \
+status\n  \
+scenario_failures.csv  line, id, underlying, scenario, spot_shock, vol_shock, jump_size, reason: every \
+scenario revaluation that failed\n  \
+report.html            all of the above with SVG charts, self-contained\n\
+Positions are quantity x multiplier (optional columns, default 1) and grouped by `underlying`.\n\
+level is `underlying` or `book`; the book row's underlying field reads (book), so use level to tell it \
+from an underlying of that name. Book-row delta and gamma are empty (units differ across underlyings).\n\
+status is `ok`; `partial: N rows could not be revalued...` when rows of the group failed in that \
+scenario (the P&L excludes them; scenario_failures.csv says why); or `error: ...` when the aggregate \
+overflowed (the value is left empty).\n\
+Rows that fail keep their status in positions.csv, are listed in the report (the first 1000) and \
+excluded from every total. Memory depends on the number of underlyings and scenarios, not rows.\n\
+Accepted shocks: spot and jump above -100% and at most +1000%; vol -100 to +100 points; \
+at most 100 values per list, none repeated.\n\
+Exit codes: 0 every row priced and revalued; 1 some rows or scenario revaluations failed, or an \
+aggregate overflowed; ",
     exit_2!()
 ))]
 pub struct Args {
@@ -70,8 +90,8 @@ pub struct Args {
     )]
     pub vol_shocks: String,
     /// Instantaneous jump sizes of the underlying in percent (repeatable).
-    #[arg(long, value_name = "PCT", default_values_t = [-20.0], allow_hyphen_values = true)]
-    pub jump_shock: Vec<f64>,
+    #[arg(long, value_name = "PCT", default_values = ["-20"], allow_hyphen_values = true)]
+    pub jump_shock: Vec<String>,
     /// Title of the HTML report.
     #[arg(long, default_value = "Book risk report")]
     pub title: String,
@@ -80,125 +100,170 @@ pub struct Args {
     pub quiet: bool,
 }
 
-fn parse_list(name: &str, s: &str, scale: f64) -> Result<Vec<f64>> {
-    let mut v = Vec::new();
-    for part in s.split(',') {
-        let x: f64 = part
-            .trim()
-            .parse()
-            .with_context(|| format!("{name}: '{}' is not a number", part.trim()))?;
-        if !x.is_finite() {
-            bail!("{name}: '{}' is not finite", part.trim());
+/// Parses a comma-separated list of numbers in percent (or vol points) and
+/// checks each value, as a fraction, with `problem`.
+fn parse_list<'a>(
+    option: &str,
+    parts: impl Iterator<Item = &'a str>,
+    unit: &str,
+    problem: fn(f64) -> Option<&'static str>,
+) -> Result<Vec<f64>> {
+    let mut seen: Vec<(f64, &str)> = Vec::new();
+    for part in parts {
+        let p = part.trim();
+        if p.is_empty() {
+            bail!("{option}: empty value (two commas in a row, or a comma at an end)");
         }
-        v.push(x * scale);
+        let x: f64 = p
+            .parse()
+            .map_err(|_| anyhow!("{option}: '{}' is not a number", p.escape_debug()))?;
+        let frac = x / 100.0;
+        if let Some(why) = problem(frac) {
+            bail!("{option}: {p}{unit} {why}");
+        }
+        if let Some((_, q)) = seen.iter().find(|(y, _)| *y == frac) {
+            bail!("{option}: {p} is given twice (also as {q})");
+        }
+        seen.push((frac, p));
     }
-    if v.is_empty() {
-        bail!("{name} is empty");
-    }
-    v.sort_by(f64::total_cmp);
-    v.dedup();
-    Ok(v)
+    Ok(seen.into_iter().map(|(x, _)| x).collect())
+}
+
+/// The validated scenario definition.
+fn scenario_spec(args: &Args) -> Result<ScenarioSpec> {
+    let list = |option: &str, text: &str| {
+        if text.trim().is_empty() {
+            bail!("{option} is empty: give at least one value");
+        }
+        Ok(())
+    };
+    list("--spot-shocks", &args.spot_shocks)?;
+    list("--vol-shocks", &args.vol_shocks)?;
+    let spot = parse_list(
+        "--spot-shocks",
+        args.spot_shocks.split(','),
+        "%",
+        risk::spot_shock_problem,
+    )?;
+    let vol = parse_list(
+        "--vol-shocks",
+        args.vol_shocks.split(','),
+        " vol points",
+        risk::vol_shock_problem,
+    )?;
+    let jump = parse_list(
+        "--jump-shock",
+        args.jump_shock.iter().map(String::as_str),
+        "%",
+        risk::spot_shock_problem,
+    )?;
+    ScenarioSpec::new(spot, vol, jump).map_err(|e| anyhow!("{e}"))
 }
 
 /// Runs the command.
 pub fn run(args: Args) -> Result<ExitCode> {
     let start = Instant::now();
-    let spot_shocks = parse_list("--spot-shocks", &args.spot_shocks, 0.01)?;
-    if spot_shocks.iter().any(|s| *s <= -1.0) {
-        bail!("--spot-shocks must be above -100%");
-    }
-    let vol_shocks = parse_list("--vol-shocks", &args.vol_shocks, 0.01)?;
-    let jump_shocks: Vec<f64> = args.jump_shock.iter().map(|j| j * 0.01).collect();
-    if jump_shocks.iter().any(|j| !j.is_finite() || *j <= -1.0) {
-        bail!("--jump-shock must be above -100%");
-    }
+    let spec = scenario_spec(&args)?;
     // Everything is written into a staging directory, swapped in at the end.
     let staged = OutputDir::stage(&args.output, &args.book, &REPORT_FILES)?;
     let out_dir = staged.path().to_path_buf();
     let positions_path = out_dir.join("positions.csv");
+    let failures_path = out_dir.join(SCENARIO_FAILURES_FILE);
     let mut columns: Vec<String> = DESK_COLUMNS.iter().map(|s| s.to_string()).collect();
     columns.push("position_value".into());
     columns.push("status".into());
     let opts = PipelineOptions {
         result_columns: columns,
     };
-    let positions = Mutex::new(Vec::new());
     let input = open_input(&args.book)?;
     let out = BufWriter::new(
         File::create(&positions_path)
             .with_context(|| format!("cannot create {}", positions_path.display()))?,
     );
-    let summary = run_book(input, out, &opts, |row, w| {
-        let g = series::price(&row.contract)
-            .map_err(|e| e.to_string())?
-            .greeks;
-        for v in g.desk_units() {
-            w.push_f64(v);
-        }
-        w.push_f64(row.quantity * row.multiplier * g.price);
-        if w.non_finite().is_some() {
-            return Ok(()); // the pipeline fails the row; keep it out of the totals
-        }
-        positions.lock().expect("positions lock").push(Position {
-            row: row.row,
-            id: row.id().into_owned(),
-            underlying: row.underlying.to_string(),
-            contract: row.contract,
-            quantity: row.quantity,
-            multiplier: row.multiplier,
-            greeks: g,
-        });
-        Ok(())
-    })?;
-    // The failed rows, from the file just written (it holds every row, in order).
-    let mut failed = Vec::new();
-    let mut rdr = csv::Reader::from_path(&positions_path)?;
-    let headers = rdr.headers()?.clone();
-    let id_col = headers
-        .iter()
-        .position(|h| h.trim().eq_ignore_ascii_case("id"));
-    let status_col = headers.len() - 1;
-    for (i, rec) in rdr.records().enumerate() {
-        let rec = rec?;
-        let status = rec.get(status_col).unwrap_or("");
-        if status != "ok" {
-            let row = i as u64 + 1;
-            let id = id_col
-                .and_then(|c| rec.get(c))
-                .map(str::to_string)
-                .unwrap_or(row.to_string());
-            failed.push(FailedRow {
-                row,
-                id,
-                status: status.to_string(),
-            });
-        }
-    }
-    let spec = ScenarioSpec {
-        spot_shocks,
-        vol_shocks,
-        jump_shocks,
-    };
-    let report = risk::build(positions.into_inner().expect("positions lock"), spec)
-        .map_err(anyhow::Error::msg)?;
-    report::write_all(&out_dir, &report, &failed, &args.title)?;
+    let mut failures_out = ScenarioFailureWriter::new(BufWriter::new(
+        File::create(&failures_path)
+            .with_context(|| format!("cannot create {}", failures_path.display()))?,
+    ))?;
+    let mut total = RiskAccumulator::default();
+    let spec_ref = &spec;
+    let summary = run_book_with_state(
+        input,
+        out,
+        &opts,
+        |row, w, acc: &mut RiskAccumulator| {
+            let g = series::price(&row.contract)
+                .map_err(|e| e.to_string())?
+                .greeks;
+            let id = row.id();
+            let p = PositionRef {
+                row: row.row,
+                line: row.line,
+                id: &id,
+                underlying: row.underlying,
+                contract: row.contract,
+                weight: row.quantity * row.multiplier,
+                greeks: g,
+            };
+            // Every value written below is checked finite first, so the row
+            // is either an error here or counted in full.
+            let e = risk::exposure_of(&p)?;
+            for v in g.desk_units() {
+                w.push_f64(v);
+            }
+            w.push_f64(e.value);
+            acc.add(spec_ref, &p, &e);
+            Ok(())
+        },
+        |chunk: RiskAccumulator| {
+            for f in chunk.scenario_failure_list() {
+                failures_out.write(f)?;
+            }
+            total.merge(chunk);
+            Ok(())
+        },
+    )?;
+    failures_out
+        .finish()?
+        .flush()
+        .with_context(|| format!("cannot write {}", failures_path.display()))?;
+    let report = total.finish(spec);
+    report::write_all(&out_dir, &report, &args.title)?;
     staged.commit()?;
+    let problems = report.aggregate_problems();
     if !args.quiet {
         report_rows(&summary, "priced", start.elapsed().as_secs_f64());
-        if !failed.is_empty() {
+        if report.failed_rows > 0 {
             eprintln!(
                 "saltus: {} failed rows are excluded from the totals and scenarios",
-                failed.len()
+                report.failed_rows
+            );
+        }
+        if report.scenario_failures > 0 {
+            eprintln!(
+                "saltus: {} scenario revaluations failed; those cells exclude the rows (status partial, see {})",
+                report.scenario_failures,
+                args.output.join(SCENARIO_FAILURES_FILE).display()
+            );
+        }
+        for p in problems.iter().take(20) {
+            eprintln!("saltus: aggregate not finite: {p}");
+        }
+        if problems.len() > 20 {
+            eprintln!(
+                "saltus: ... and {} more aggregates not finite",
+                problems.len() - 20
             );
         }
         eprintln!(
-            "saltus: report written to {} (report.html, totals.csv, scenarios.csv, jump_scenarios.csv, greeks_vs_spot.csv, positions.csv)",
+            "saltus: report written to {} (report.html, totals.csv, scenarios.csv, jump_scenarios.csv, greeks_vs_spot.csv, {SCENARIO_FAILURES_FILE}, positions.csv)",
             args.output.display()
         );
     }
-    Ok(if summary.failed > 0 {
-        ExitCode::from(1)
-    } else {
-        ExitCode::SUCCESS
-    })
+    Ok(
+        if summary.failed > 0 || report.scenario_failures > 0 || !problems.is_empty() {
+            ExitCode::from(1)
+        } else {
+            ExitCode::SUCCESS
+        },
+    )
 }
