@@ -238,10 +238,10 @@ fn issue8_a_non_finite_position_value_is_a_row_error() {
     assert_eq!(out.status.code(), Some(1));
     let (h, rows) = read_csv(&fs::read(report.join("positions.csv")).unwrap());
     assert_eq!(rows.len(), 2);
-    assert_eq!(
-        rows[0][col(&h, "status")],
-        "error: line 2: position_value is not finite (inf): \
-         outside the range double precision can represent"
+    assert!(
+        rows[0][col(&h, "status")].starts_with("error: line 2: position_value is not finite"),
+        "{}",
+        rows[0][col(&h, "status")]
     );
     assert_eq!(rows[1][col(&h, "status")], "ok");
     assert_no_non_finite_ok_row(&h, &rows, 10);
