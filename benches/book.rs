@@ -5,8 +5,8 @@
 
 use criterion::{criterion_group, criterion_main, Criterion, Throughput};
 use saltus::book::{run_book, PipelineOptions};
+use saltus::engines::series;
 use saltus::greeks::RAW_COLUMNS;
-use saltus::series;
 use std::fmt::Write as _;
 
 mod common;

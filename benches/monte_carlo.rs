@@ -12,8 +12,8 @@ use rand::{RngExt, SeedableRng};
 use rand_chacha::ChaCha8Rng;
 use rand_distr::{Distribution, StandardNormal};
 use rayon::prelude::*;
+use saltus::engines::monte_carlo::{self, IntensityChoice, McConfig, Work, BLOCK_PAIRS};
 use saltus::model::{Contract, JumpParams, OptionKind};
-use saltus::monte_carlo::{self, IntensityChoice, McConfig, Work, BLOCK_PAIRS};
 use std::hint::black_box;
 
 const PATHS: u64 = 1 << 24;

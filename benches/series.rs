@@ -3,8 +3,8 @@
 //! Run: cargo bench --bench series
 
 use criterion::{criterion_group, criterion_main, BatchSize, Criterion, Throughput};
+use saltus::engines::series;
 use saltus::model::{Contract, JumpParams, OptionKind};
-use saltus::series;
 use std::hint::black_box;
 
 mod common;

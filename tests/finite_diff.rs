@@ -3,15 +3,15 @@
 
 use crate::common::merton;
 use saltus::black_scholes;
-use saltus::engine::{FourierEngine, SeriesEngine};
-use saltus::finite_diff::{self, FdConfig};
+use saltus::engines::monte_carlo::{stream_key, McConfig, Work};
+use saltus::engines::series;
+use saltus::engines::{FourierEngine, SeriesEngine};
+use saltus::greeks::finite_diff::{self, FdConfig};
 use saltus::greeks::{Greeks, SENSITIVITY_NAMES};
 use saltus::model::{
     Contract,
     OptionKind::{Call, Put},
 };
-use saltus::monte_carlo::{stream_key, McConfig, Work};
-use saltus::series;
 
 fn fields(g: &Greeks) -> [(&'static str, f64); 11] {
     let v = g.sensitivities();

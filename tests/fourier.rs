@@ -2,8 +2,9 @@
 //! mpmath reference, and the honesty of its own error estimate.
 
 use crate::common::{contract, merton, num, read_fixture};
+use saltus::black_scholes;
+use saltus::engines::{fourier, series};
 use saltus::model::OptionKind::{self, Call, Put};
-use saltus::{black_scholes, fourier, series};
 
 #[test]
 fn equals_the_series_to_1e_10_across_a_sweep() {

@@ -2,8 +2,8 @@
 
 use crate::common::merton;
 use saltus::black_scholes;
+use saltus::engines::series;
 use saltus::model::OptionKind::{self, Call, Put};
-use saltus::series;
 
 fn sweep() -> Vec<[f64; 9]> {
     // s, k, t, r, q, sigma, lambda, mu_J, delta

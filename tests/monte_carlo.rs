@@ -2,9 +2,11 @@
 //! within its own error bars, honest coverage, reproducibility.
 
 use crate::common::merton;
+use saltus::engines::monte_carlo::{
+    self, stream_key, IntensityChoice, McConfig, MertonSampler, Work,
+};
+use saltus::engines::series;
 use saltus::model::OptionKind::{Call, Put};
-use saltus::monte_carlo::{self, stream_key, IntensityChoice, McConfig, MertonSampler, Work};
-use saltus::series;
 
 fn cfg(paths: u64) -> McConfig {
     McConfig {

@@ -3,9 +3,9 @@
 //! terms, Greeks by mpmath.diff), and the special functions it rests on.
 
 use crate::common::{contract, num, read_fixture};
+use saltus::engines::series;
 use saltus::normal::norm_cdf;
 use saltus::poisson::pmf;
-use saltus::series;
 
 /// Accuracy target of the foundation issue: prices to 1e-12 relative with an
 /// absolute floor of 1e-13 times spot; Greeks to 1e-9 relative, same floor.

@@ -2,9 +2,9 @@
 
 use crate::common::merton;
 use assert_cmd::Command;
+use saltus::engines::series;
 use saltus::model::OptionKind::{Call, Put};
-use saltus::risk::{self, Position, ScenarioSpec};
-use saltus::series;
+use saltus::reports::risk::{self, Position, ScenarioSpec};
 use std::collections::HashMap;
 use std::fs;
 

@@ -9,8 +9,8 @@
 //! put sum plus parity, Greeks by mpmath.diff).
 
 use crate::common::{contract, num, read_fixture};
+use saltus::engines::series::{self, SeriesError};
 use saltus::model::{Contract, JumpParams, OptionKind};
-use saltus::series::{self, SeriesError};
 
 /// A seeded xorshift64 generator (same digits on every run).
 struct Rng(u64);

@@ -7,8 +7,8 @@
 
 use super::records::Record;
 use super::schema::Schema;
+use crate::engines::monte_carlo;
 use crate::model::{Contract, JumpParams, OptionKind, Short};
-use crate::monte_carlo;
 use std::borrow::Cow;
 use std::fmt;
 
@@ -595,13 +595,13 @@ mod tests {
         let with_id = |id| rec(&["call", "100", "90", "1", "0", "0.2", "0", "0", "0", id]);
         let (x, y) = (with_id("X"), with_id("X"));
         let kx = parse_row(&s, &x, 1, 2).unwrap().stream_key(7);
-        assert_eq!(kx, crate::monte_carlo::stream_key(7, "X"));
+        assert_eq!(kx, crate::engines::monte_carlo::stream_key(7, "X"));
         assert_eq!(kx, parse_row(&s, &y, 9, 10).unwrap().stream_key(7));
         let (e1, e2) = (with_id(""), with_id(" "));
         let k1 = parse_row(&s, &e1, 1, 2).unwrap().stream_key(7);
         let k2 = parse_row(&s, &e1, 3, 4).unwrap().stream_key(7);
         assert_eq!(k1, k2);
-        assert_ne!(k1, crate::monte_carlo::stream_key(7, ""));
+        assert_ne!(k1, crate::engines::monte_carlo::stream_key(7, ""));
         assert_ne!(k1, parse_row(&s, &e2, 1, 2).unwrap().stream_key(7));
     }
 

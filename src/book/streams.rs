@@ -16,7 +16,7 @@
 //! and the examples (the repeats on the lowest lines) are deterministic.
 
 use super::reader::BookRow;
-use crate::monte_carlo;
+use crate::engines::monte_carlo;
 use std::collections::{BTreeMap, HashMap};
 use std::sync::Mutex;
 

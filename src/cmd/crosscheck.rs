@@ -6,10 +6,10 @@ use super::{open_input, report_rows};
 use anyhow::{bail, Result};
 use indicatif::{ProgressBar, ProgressStyle};
 use saltus::book::{run_book, PipelineOptions, StreamKeys};
-use saltus::crosscheck::{check, CheckConfig, CheckSummary, Outcome, SummaryRecord};
-use saltus::monte_carlo::{
+use saltus::engines::monte_carlo::{
     IntensityChoice, McConfig, Work, GAMMA_RANGE, MAX_JUMP_MEAN_SHIFT, MAX_PATHS,
 };
+use saltus::reports::crosscheck::{check, CheckConfig, CheckSummary, Outcome, SummaryRecord};
 use std::io::IsTerminal;
 use std::path::PathBuf;
 use std::process::ExitCode;

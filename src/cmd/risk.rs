@@ -10,10 +10,10 @@ use super::output::OutputDir;
 use super::{open_input, report_rows};
 use anyhow::{anyhow, bail, Context, Result};
 use saltus::book::{run_book_with_state, PipelineOptions};
+use saltus::engines::series;
 use saltus::greeks::DESK_COLUMNS;
-use saltus::report::{self, ScenarioFailureWriter, SCENARIO_FAILURES_FILE};
-use saltus::risk::{self, PositionRef, RiskAccumulator, ScenarioSpec};
-use saltus::series;
+use saltus::reports::risk::{self, PositionRef, RiskAccumulator, ScenarioSpec};
+use saltus::reports::risk_report::{self, ScenarioFailureWriter, SCENARIO_FAILURES_FILE};
 use std::fs::File;
 use std::io::{BufWriter, Write};
 use std::path::PathBuf;
@@ -227,7 +227,7 @@ pub fn run(args: Args) -> Result<ExitCode> {
         .flush()
         .with_context(|| format!("cannot write {}", failures_path.display()))?;
     let report = total.finish(spec);
-    report::write_all(&out_dir, &report, &args.title)?;
+    risk_report::write_all(&out_dir, &report, &args.title)?;
     staged.commit()?;
     let problems = report.aggregate_problems();
     if !args.quiet {

@@ -229,7 +229,7 @@ impl Setup {
 /// // d'Halluin, Forsyth & Vetzal (2005) test case: call about 4.391243.
 /// let c = Contract::new(OptionKind::Call, 100.0, 100.0, 0.25, 0.05, 0.0, 0.15,
 ///     JumpParams { rate: 0.1, mean: -0.9, vol: 0.45 }).unwrap();
-/// let r = saltus::series::price(&c).unwrap();
+/// let r = saltus::engines::series::price(&c).unwrap();
 /// assert!((r.greeks.price - 4.391243).abs() < 5e-6);
 /// ```
 pub fn price(c: &Contract) -> Result<SeriesResult, SeriesError> {

@@ -11,8 +11,8 @@
 //! book runs ([`ScenarioFailureWriter`]); [`write_all`] writes the rest from
 //! the accumulated [`RiskReport`].
 
-pub use crate::risk::FailedRow;
-use crate::risk::{Cell, CurvePoint, Group, RiskReport, ScenarioFailure, ScenarioKind};
+pub use crate::reports::risk::FailedRow;
+use crate::reports::risk::{Cell, CurvePoint, Group, RiskReport, ScenarioFailure, ScenarioKind};
 use plotters::prelude::*;
 use std::fmt::Write as _;
 use std::fs;
@@ -175,14 +175,17 @@ pub fn write_all(dir: &Path, r: &RiskReport, title: &str) -> std::io::Result<()>
     // across underlyings, so the book row leaves them empty.
     let mut w = csv::Writer::from_path(dir.join("totals.csv")).map_err(csv_err)?;
     let mut header = vec!["underlying", "positions"];
-    header.extend(crate::risk::EXPOSURE_COLUMNS);
+    header.extend(crate::reports::risk::EXPOSURE_COLUMNS);
     header.extend(["level", "status"]);
     w.write_record(&header).map_err(csv_err)?;
     for g in &groups {
         let book = g.underlying.is_none();
         let e = g.exposure;
         let mut rec = vec![name_of(g).to_string(), e.positions.to_string()];
-        for (name, x) in crate::risk::EXPOSURE_COLUMNS.iter().zip(e.values()) {
+        for (name, x) in crate::reports::risk::EXPOSURE_COLUMNS
+            .iter()
+            .zip(e.values())
+        {
             let unit_dependent = matches!(*name, "delta" | "gamma");
             rec.push(if book && unit_dependent {
                 String::new()
@@ -683,15 +686,15 @@ fn problems_html(r: &RiskReport) -> String {
          <code>error</code> status:</p><ul>",
         count(problems.len() as u64, "aggregate")
     );
-    for p in problems.iter().take(crate::risk::MAX_LISTED) {
+    for p in problems.iter().take(crate::reports::risk::MAX_LISTED) {
         let _ = write!(t, "<li>{}</li>", esc(p));
     }
     t.push_str("</ul>");
-    if problems.len() > crate::risk::MAX_LISTED {
+    if problems.len() > crate::reports::risk::MAX_LISTED {
         let _ = write!(
             t,
             "<p>&hellip; and {} more.</p>",
-            problems.len() - crate::risk::MAX_LISTED
+            problems.len() - crate::reports::risk::MAX_LISTED
         );
     }
     t

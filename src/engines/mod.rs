@@ -1,9 +1,13 @@
-//! A common interface to the pricing engines, so that bump-and-reprice
-//! Greeks and cross-checks work with any of them.
+//! The pricing engines and their common interface, so that bump-and-reprice
+//! Greeks and cross-checks work with any of them: [`series`] (the closed
+//! form), [`fourier`] and [`monte_carlo`] (the independent engines).
+
+pub mod fourier;
+pub mod monte_carlo;
+pub mod series;
 
 use crate::model::Contract;
-use crate::monte_carlo::{self, McConfig};
-use crate::{fourier, series};
+use monte_carlo::McConfig;
 
 /// A price with the engine's own error measure.
 #[derive(Debug, Clone, Copy, PartialEq)]

@@ -37,9 +37,9 @@
 
 use crate::book::pipeline::CHUNK_ROWS;
 use crate::book::{ChunkState, FailedRecord};
+use crate::engines::series;
 use crate::greeks::{Greeks, DAYS_PER_YEAR};
 use crate::model::Contract;
-use crate::series;
 use std::collections::BTreeMap;
 use std::fmt;
 

@@ -14,10 +14,10 @@
 //! order, `4 err / h^2` for second), which is what a comparison tolerance
 //! must allow for on top of the truncation error.
 
-use crate::engine::{MonteCarloEngine, PricingEngine};
+use crate::engines::monte_carlo::{self, McConfig};
+use crate::engines::{MonteCarloEngine, PricingEngine};
 use crate::greeks::Greeks;
 use crate::model::{Contract, Param};
-use crate::monte_carlo::{self, McConfig};
 
 /// Bump sizes: the spot bump is relative to the one-standard-deviation move
 /// `S min(1, s sqrt T)` with `s^2 = sigma^2 + lambda (mu_J^2 + delta^2)`, so

@@ -21,10 +21,10 @@
 //! - The row's verdict is `disagree: ...` if any check fails, `inconclusive: ...`
 //!   if none fails but one could not decide, otherwise `agree`.
 
-use crate::fourier::{self, FourierResult};
+use crate::engines::fourier::{self, FourierResult};
+use crate::engines::monte_carlo::{self, McConfig, McEstimate};
+use crate::engines::series;
 use crate::model::Contract;
-use crate::monte_carlo::{self, McConfig, McEstimate};
-use crate::series;
 
 /// Smallest number of in-the-money Monte Carlo paths for a verdict.
 pub const MIN_MC_HITS: u64 = 100;

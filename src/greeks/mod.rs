@@ -4,7 +4,9 @@
 //! unit of vol, theta per year, rho per unit of rate). [`Greeks::desk_units`]
 //! converts to the per-point / per-day units a desk quotes; the CSV writer
 //! renames those columns so the two can never be confused.
-//! Bump-and-reprice versions live in [`crate::finite_diff`].
+//! Bump-and-reprice versions live in [`finite_diff`].
+
+pub mod finite_diff;
 
 /// Price and Greeks of one option. Raw partial derivatives, per unit.
 #[derive(Debug, Clone, Copy, PartialEq, Default)]

@@ -140,8 +140,8 @@ impl Integrand {
 /// use saltus::model::{Contract, JumpParams, OptionKind};
 /// let c = Contract::new(OptionKind::Call, 100.0, 100.0, 0.25, 0.05, 0.0, 0.15,
 ///     JumpParams { rate: 0.1, mean: -0.9, vol: 0.45 }).unwrap();
-/// let f = saltus::fourier::price(&c).unwrap();
-/// let s = saltus::series::price(&c).unwrap().greeks.price;
+/// let f = saltus::engines::fourier::price(&c).unwrap();
+/// let s = saltus::engines::series::price(&c).unwrap().greeks.price;
 /// assert!((f.price - s).abs() < 1e-10 * s);
 /// ```
 ///
@@ -348,7 +348,7 @@ mod tests {
         )
         .unwrap();
         let f = price(&c).unwrap();
-        let s = crate::series::price(&c).unwrap().greeks.price;
+        let s = crate::engines::series::price(&c).unwrap().greeks.price;
         assert!((f.price - s).abs() < 1e-10 * s, "{} vs {}", f.price, s);
         assert!(f.error_estimate < 1e-10 * s);
     }
