@@ -2,6 +2,7 @@
 //! against an outside reference named beside each check.
 
 mod book_contract_cli;
+mod calibrate;
 mod common;
 mod crosscheck_cli;
 mod engine_limits_cli;

@@ -96,7 +96,7 @@ impl fmt::Display for RowError {
     }
 }
 
-fn text(field: &[u8]) -> Result<&str, String> {
+pub(crate) fn text(field: &[u8]) -> Result<&str, String> {
     let s = std::str::from_utf8(field).map_err(|_| "is not valid UTF-8".to_string())?;
     // Trimming (Unicode white space) is only needed when an end byte is not
     // a visible ASCII character; usually neither is.
@@ -130,7 +130,7 @@ fn number(rec: &Record, idx: usize, name: &str) -> Result<f64, String> {
 /// `str::parse`.
 #[cold]
 #[inline(never)]
-fn general_number(raw: &[u8], name: &str) -> Result<f64, String> {
+pub(crate) fn general_number(raw: &[u8], name: &str) -> Result<f64, String> {
     let raw = raw.trim_ascii();
     if raw.is_empty() {
         return Err(format!("{name} is missing"));
@@ -211,7 +211,7 @@ const POW10: [f64; 23] = [
 /// one division is correctly rounded (Clinger's fast path) and the result is
 /// the same double `str::parse` gives. `None` for any other text.
 #[inline(always)]
-fn plain_decimal(s: &[u8]) -> Option<f64> {
+pub(crate) fn plain_decimal(s: &[u8]) -> Option<f64> {
     let (negative, digits) = match s.split_first() {
         Some((b'-', rest)) => (true, rest),
         _ => (false, s),
