@@ -34,6 +34,8 @@ enum Command {
     Greeks(cmd::greeks::Args),
     /// Exposures by underlying, full-revaluation scenarios, CSV files and an HTML report.
     Risk(cmd::risk::Args),
+    /// Fit the Merton parameters per underlying to option quotes, with diagnostics.
+    Calibrate(cmd::calibrate::Args),
 }
 
 /// The largest worker count accepted: 64 x the available cores (more only
@@ -82,6 +84,7 @@ fn main() -> ExitCode {
         Command::Crosscheck(args) => cmd::crosscheck::run(args),
         Command::Greeks(args) => cmd::greeks::run(args),
         Command::Risk(args) => cmd::risk::run(args),
+        Command::Calibrate(args) => cmd::calibrate::run(args),
     };
     match result {
         Ok(code) => code,

@@ -22,6 +22,7 @@ written; no output file is then replaced)."
     };
 }
 
+pub mod calibrate;
 pub mod crosscheck;
 pub mod greeks;
 pub mod output;

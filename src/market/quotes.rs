@@ -363,7 +363,7 @@ fn parse_quote(c: &Columns, rec: &Record, line: u64) -> Result<Quote, String> {
     };
     let bound_reason = |e: ImpliedVolError, what: &str| match e {
         ImpliedVolError::BelowLowerBound { .. } | ImpliedVolError::AboveUpperBound { .. } => {
-            Ok(format!("{what} {e}"))
+            Ok(format!("arbitrage: {what} {e}"))
         }
         other => Err(format!("{what}: no implied vol: {other}")),
     };

@@ -1,7 +1,9 @@
 //! What the commands report: the three-engine cross-check ([`crosscheck`]),
-//! exposures and full-revaluation scenarios ([`risk`]), and the risk
-//! report's CSV files and HTML page ([`risk_report`]).
+//! exposures and full-revaluation scenarios ([`risk`]), the risk
+//! report's CSV files and HTML page ([`risk_report`]), and a calibration's
+//! parameters, residuals and HTML page ([`calibration_report`]).
 
+pub mod calibration_report;
 pub mod crosscheck;
 pub mod risk;
 pub mod risk_report;
