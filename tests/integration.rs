@@ -3,6 +3,7 @@
 
 mod book_contract_cli;
 mod calibrate;
+mod calibrate_cli;
 mod common;
 mod crosscheck_cli;
 mod engine_limits_cli;

@@ -155,7 +155,8 @@ mod tests {
         ] {
             let p = black_scholes::price(k, s, x, t, 0.03, 0.01, sig);
             let iv = implied_vol(k, p, s, x, t, 0.03, 0.01).unwrap();
-            assert!((iv - sig).abs() < 1e-12 * sig, "{iv} vs {sig}");
+            // In-the-money inputs lose digits to the parity subtraction.
+            assert!((iv - sig).abs() < 1e-10 * sig, "{iv} vs {sig}");
         }
     }
 }

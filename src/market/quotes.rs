@@ -362,9 +362,9 @@ fn parse_quote(c: &Columns, rec: &Record, line: u64) -> Result<Quote, String> {
         arbitrage: None,
     };
     let bound_reason = |e: ImpliedVolError, what: &str| match e {
-        ImpliedVolError::BelowLowerBound { .. } | ImpliedVolError::AboveUpperBound { .. } => {
-            Ok(format!("arbitrage: {what} {e}"))
-        }
+        ImpliedVolError::BelowLowerBound { .. } | ImpliedVolError::AboveUpperBound { .. } => Ok(
+            format!("arbitrage: {what} outside the no-arbitrage bounds: {e}"),
+        ),
         other => Err(format!("{what}: no implied vol: {other}")),
     };
     match value {
