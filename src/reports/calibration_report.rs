@@ -449,7 +449,13 @@ fn residual_chart(title: &str, points: &[(f64, f64, f64)], expiries: &[f64]) -> 
                 .x_desc("strike")
                 .y_desc("model - market (vol points)")
                 .light_line_style(RGBColor(235, 235, 235))
-                .y_label_formatter(&|y| format!("{y:.2e}"))
+                .y_label_formatter(&|y| {
+                    if m >= 0.01 {
+                        format!("{y:.2}")
+                    } else {
+                        format!("{y:.1e}")
+                    }
+                })
                 .draw();
             for (i, &e) in expiries.iter().enumerate() {
                 let c = PALETTE[i % PALETTE.len()];
@@ -482,6 +488,19 @@ fn cell(x: Option<f64>, digits: usize) -> String {
     }
 }
 
+/// `x` to three significant digits (standard errors, condition numbers).
+fn sig3(x: Option<f64>) -> String {
+    match x.filter(|x| x.is_finite()) {
+        Some(x) if x != 0.0 && (x.abs() < 1e-4 || x.abs() >= 1e6) => format!("{x:.2e}"),
+        Some(x) if x != 0.0 => {
+            let d = (2 - x.abs().log10().floor() as i32).max(0) as usize;
+            format!("{x:.d$}")
+        }
+        Some(_) => "0".into(),
+        None => "&ndash;".into(),
+    }
+}
+
 fn params_table(fits: &[Fit], per_expiry: bool) -> String {
     let mut t = String::from("<table><tr><th>underlying</th>");
     if per_expiry {
@@ -504,7 +523,7 @@ fn params_table(fits: &[Fit], per_expiry: bool) -> String {
             let se = if f.fixed[j] {
                 "fixed".to_string()
             } else {
-                format!("&plusmn; {}", cell(f.se[j], 2))
+                format!("&plusmn; {}", sig3(f.se[j]))
             };
             let _ = write!(
                 t,
@@ -519,7 +538,7 @@ fn params_table(fits: &[Fit], per_expiry: bool) -> String {
             f.quotes_used,
             cell(ok.then_some(f.rmse_vol_pts), 3),
             cell(ok.then_some(f.max_abs_residual_vol_pts), 3),
-            cell(f.condition_number, 2),
+            sig3(f.condition_number),
             f.starts_near_best,
             f.starts,
             esc(&f.flags.join("; ")),
