@@ -105,7 +105,7 @@ pub fn check_param(j: usize, v: f64) -> Result<(), String> {
     } else {
         (0.0, PARAM_MAX[j])
     };
-    if v.is_finite() && v > lo && v < hi || (j == 1 && v == 0.0) {
+    if v.is_finite() && v > lo && v < hi || ((j == 1 || j == 3) && v == 0.0) {
         Ok(())
     } else {
         Err(format!(
@@ -474,10 +474,7 @@ pub fn fit_group(
             .vega
         })
         .collect();
-    let mut base = [0.0; 4];
-    for j in 0..4 {
-        base[j] = spec.fixed[j].unwrap_or(0.0);
-    }
+    let base = spec.fixed.map(|v| v.unwrap_or(0.0));
     let problem = Fitting {
         quotes: quotes.to_vec(),
         market_vega,

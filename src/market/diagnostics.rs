@@ -107,7 +107,7 @@ pub fn covariance(jac: &[f64], m: usize, p: usize, ssr: f64, dof_m: usize) -> Co
     let max = eig.iter().cloned().fold(0.0_f64, f64::max);
     let min = eig.iter().cloned().fold(f64::INFINITY, f64::min);
     let singular: Vec<usize> = (0..p)
-        .filter(|&k| !(eig[k] > SINGULAR_REL * max) || scale.iter().any(|s| *s == 0.0))
+        .filter(|&k| eig[k].is_nan() || eig[k] <= SINGULAR_REL * max || scale.contains(&0.0))
         .collect();
     let condition_number = if singular.is_empty() && min > 0.0 {
         Some(max / min)

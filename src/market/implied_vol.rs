@@ -97,7 +97,7 @@ pub fn implied_vol(
         OptionKind::Put if kd > fs => (OptionKind::Call, price - (kd - fs)),
         _ => (kind, price),
     };
-    if !(target > 1e-300) || target < 1e-15 * price.max(f64::MIN_POSITIVE) {
+    if target.is_nan() || target <= 1e-300 || target < 1e-15 * price.max(f64::MIN_POSITIVE) {
         return Err(ImpliedVolError::Unresolvable(target));
     }
     let f = |s: f64| black_scholes::greeks(otm_kind, spot, strike, expiry, rate, div_yield, s);

@@ -418,7 +418,7 @@ fn parse_quote(c: &Columns, rec: &Record, line: u64) -> Result<Quote, String> {
                         (Some(b), None) => v - b,
                         (None, None) => 0.0,
                     };
-                    if !(half > 0.0) {
+                    if half.is_nan() || half <= 0.0 {
                         return Err(format!(
                             "bid {} and ask {} give no vol spread: quote a price or an \
                              implied_vol instead",

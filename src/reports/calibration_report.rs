@@ -413,12 +413,6 @@ fn smile_chart(title: &str, quotes: &[&Quote], params: Option<[f64; 4]>) -> Stri
                         .legend(move |(x, y)| PathElement::new(vec![(x, y), (x + 16, y)], style));
                 }
             }
-            let _ = chart
-                .configure_series_labels()
-                .background_style(WHITE.mix(0.85))
-                .border_style(RGBColor(200, 200, 200))
-                .position(SeriesLabelPosition::UpperRight)
-                .draw();
         }
         let _ = root.present();
     }
@@ -555,8 +549,8 @@ fn corr_table(f: &Fit) -> String {
         let _ = write!(t, "<th>{n}</th>");
     }
     t.push_str("</tr>");
-    for a in 0..4 {
-        let _ = write!(t, "<tr><td>{}</td>", PARAM_NAMES[a]);
+    for (a, name) in PARAM_NAMES.iter().enumerate() {
+        let _ = write!(t, "<tr><td>{name}</td>");
         for b in 0..4 {
             let _ = write!(t, "<td>{}</td>", cell(f.corr[a][b], 3));
         }
@@ -634,7 +628,10 @@ pub fn html(
                 expiries.len()
             );
         }
-        sections.push_str("<div class=\"grid\">");
+        sections.push_str(
+            "<p class=\"note\">Blue dots: market implied vol of the mid; grey bars: bid to ask; \
+             red line: the fitted model's implied vol.</p><div class=\"grid\">",
+        );
         for &e in expiries.iter().take(MAX_CHARTS) {
             let qs: Vec<&Quote> = quotes.iter().copied().filter(|q| q.expiry == e).collect();
             let _ = write!(
