@@ -648,6 +648,7 @@ pub fn html(
                 let m = q.market_vol?;
                 Some((q.expiry, q.strike, 100.0 * (s - m)))
             })
+            .filter(|p| p.2.is_finite())
             .collect();
         let _ = write!(
             sections,
