@@ -490,18 +490,18 @@ pub fn check_arbitrage(sheet: &mut QuoteSheet) {
     }
     let mut flags: Vec<(usize, String)> = Vec::new();
     for ((_, _, is_call), mut idx) in groups {
-        let q = |i: usize| sheet.rows[i].quote.as_ref().ok().cloned();
-        let quotes: Vec<Quote> = {
-            idx.sort_by(|&a, &b| {
-                let (qa, qb) = (q(a).unwrap(), q(b).unwrap());
-                qa.strike.total_cmp(&qb.strike).then(a.cmp(&b))
-            });
-            idx.iter().map(|&i| q(i).unwrap()).collect()
-        };
+        let rows = &sheet.rows;
+        let strike = |i: usize| rows[i].quote.as_ref().map_or(0.0, |q| q.strike);
+        idx.sort_by(|&a, &b| strike(a).total_cmp(&strike(b)).then(a.cmp(&b)));
+        // Every index of a group holds a parsed quote (see above).
+        let quotes: Vec<&Quote> = idx
+            .iter()
+            .filter_map(|&i| rows[i].quote.as_ref().ok())
+            .collect();
         let kind = if is_call { "call" } else { "put" };
         let tol = |p: f64| ARBITRAGE_REL_TOL * p.abs().max(1e-300);
         for w in 0..quotes.len().saturating_sub(1) {
-            let (a, b) = (&quotes[w], &quotes[w + 1]);
+            let (a, b) = (quotes[w], quotes[w + 1]);
             if a.strike == b.strike {
                 continue;
             }
@@ -543,7 +543,7 @@ pub fn check_arbitrage(sheet: &mut QuoteSheet) {
             }
         }
         for w in distinct.windows(3) {
-            let (a, b, c) = (&quotes[w[0]], &quotes[w[1]], &quotes[w[2]]);
+            let (a, b, c) = (quotes[w[0]], quotes[w[1]], quotes[w[2]]);
             let (k1, k2, k3) = (a.strike, b.strike, c.strike);
             let chord = (a.price_range.1 * (k3 - k2) + c.price_range.1 * (k2 - k1)) / (k3 - k1);
             if b.price_range.0 > chord + tol(chord) {
