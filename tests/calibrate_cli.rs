@@ -249,7 +249,7 @@ fn arbitrage_is_flagged_and_excluded_unless_kept() {
     // no implied vol: excluded even with --keep-arbitrage.
     let (_, _, res, _d) = run_text(&sheet("A,call,100,1,100,0,101,,,\n"), &["--keep-arbitrage"]);
     assert!(
-        res.contains("excluded: line 12: arbitrage: price outside the no-arbitrage bounds: "),
+        res.contains("excluded: line 12: arbitrage: price 101 is not below the no-arbitrage upper bound 100 (by 1)"),
         "{res}"
     );
 }

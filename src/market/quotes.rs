@@ -22,7 +22,7 @@
 use crate::black_scholes;
 use crate::book::reader::{general_number, plain_decimal, text};
 use crate::book::records::{Record, RecordReader};
-use crate::market::implied_vol::{implied_vol, ImpliedVolError};
+use crate::market::implied_vol::implied_vol;
 use crate::model::{Contract, JumpParams, OptionKind, Short};
 use std::io::Read;
 
@@ -361,11 +361,30 @@ fn parse_quote(c: &Columns, rec: &Record, line: u64) -> Result<Quote, String> {
         half_spread_vol: None,
         arbitrage: None,
     };
-    let bound_reason = |e: ImpliedVolError, what: &str| match e {
-        ImpliedVolError::BelowLowerBound { .. } | ImpliedVolError::AboveUpperBound { .. } => Ok(
-            format!("arbitrage: {what} outside the no-arbitrage bounds: {e}"),
-        ),
-        other => Err(format!("{what}: no implied vol: {other}")),
+    let (lower, upper) = price_bounds(kind, spot, strike, expiry, rate, div_yield);
+    // Outside the bounds: a flag (the row is excluded); inside: an implied
+    // vol, or a row error when none can be resolved.
+    let bounds = |p: f64, what: &str| -> Option<String> {
+        if p <= lower {
+            Some(format!(
+                "arbitrage: {what} {} is not above the no-arbitrage lower bound {} (by {})",
+                Short(p),
+                Short(lower),
+                Short(lower - p)
+            ))
+        } else if p >= upper {
+            Some(format!(
+                "arbitrage: {what} {} is not below the no-arbitrage upper bound {} (by {})",
+                Short(p),
+                Short(upper),
+                Short(p - upper)
+            ))
+        } else {
+            None
+        }
+    };
+    let vol_of = |p: f64, what: &str| -> Result<f64, String> {
+        iv(p).map_err(|e| format!("{what} {} has no implied vol: {e}", Short(p)))
     };
     match value {
         QuoteValue::Vol(v) => {
@@ -388,12 +407,13 @@ fn parse_quote(c: &Columns, rec: &Record, line: u64) -> Result<Quote, String> {
             }
             q.market_price = p;
             q.price_range = (p, p);
-            match iv(p) {
-                Ok(v) => {
+            match bounds(p, "price") {
+                Some(why) => q.arbitrage = Some(why),
+                None => {
+                    let v = vol_of(p, "price")?;
                     q.market_vol = Some(v);
                     q.vol_range = (Some(v), Some(v));
                 }
-                Err(e) => q.arbitrage = Some(bound_reason(e, "price")?),
             }
         }
         QuoteValue::BidAsk { bid, ask } => {
@@ -406,10 +426,14 @@ fn parse_quote(c: &Columns, rec: &Record, line: u64) -> Result<Quote, String> {
             let mid = 0.5 * (bid + ask);
             q.market_price = mid;
             q.price_range = (bid, ask);
-            match iv(mid) {
-                Ok(v) => {
-                    let vb = iv(bid).ok();
-                    let va = iv(ask).ok();
+            match bounds(mid, "mid price") {
+                Some(why) => q.arbitrage = Some(why),
+                None => {
+                    let v = vol_of(mid, "mid price")?;
+                    // A bid at or below intrinsic value (or an ask at or
+                    // above the upper bound) has no vol of its own.
+                    let vb = bounds(bid, "bid").is_none().then(|| iv(bid).ok()).flatten();
+                    let va = bounds(ask, "ask").is_none().then(|| iv(ask).ok()).flatten();
                     q.market_vol = Some(v);
                     q.vol_range = (vb, va);
                     let half = match (vb, va) {
@@ -428,11 +452,29 @@ fn parse_quote(c: &Columns, rec: &Record, line: u64) -> Result<Quote, String> {
                     }
                     q.half_spread_vol = Some(half);
                 }
-                Err(e) => q.arbitrage = Some(bound_reason(e, "mid price")?),
             }
         }
     }
     Ok(q)
+}
+
+/// The static no-arbitrage bounds `(lower, upper)` of a European price:
+/// calls `max(0, S e^{-qT} - K e^{-rT}) < C < S e^{-qT}`, puts
+/// `max(0, K e^{-rT} - S e^{-qT}) < P < K e^{-rT}`.
+pub fn price_bounds(
+    kind: OptionKind,
+    spot: f64,
+    strike: f64,
+    expiry: f64,
+    rate: f64,
+    div_yield: f64,
+) -> (f64, f64) {
+    let fs = spot * (-div_yield * expiry).exp();
+    let kd = strike * (-rate * expiry).exp();
+    match kind {
+        OptionKind::Call => ((fs - kd).max(0.0), fs),
+        OptionKind::Put => ((kd - fs).max(0.0), kd),
+    }
 }
 
 /// Reads a quotes file. Row problems are kept in their rows; only a missing
