@@ -14,6 +14,7 @@ mod identities;
 mod monte_carlo;
 #[cfg(target_os = "linux")] // /dev/full, kill(1), ulimit
 mod output_safety_cli;
+mod pide;
 mod price_cli;
 // mod properties;
 mod reference;
