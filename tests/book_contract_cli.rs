@@ -5,31 +5,10 @@
 //! no NaN or inf in an `ok` row. Expected fields come from the `csv` crate
 //! reading the same input, or are written out by hand.
 
-use assert_cmd::Command;
+use crate::common::{col, read_csv, saltus, HEADER};
 use std::fs;
 
-const HEADER: &str = "kind,spot,strike,expiry,rate,vol,jump_rate,jump_mean,jump_vol";
 const ROW: &str = "call,100,95,0.5,0.03,0.2,0.5,-0.1,0.15";
-
-fn saltus() -> Command {
-    Command::cargo_bin("saltus").unwrap()
-}
-
-fn read_csv(text: &[u8]) -> (Vec<String>, Vec<Vec<String>>) {
-    let mut r = csv::ReaderBuilder::new().flexible(true).from_reader(text);
-    let h = r.headers().unwrap().iter().map(String::from).collect();
-    let rows = r
-        .records()
-        .map(|x| x.unwrap().iter().map(String::from).collect())
-        .collect();
-    (h, rows)
-}
-
-fn col(h: &[String], name: &str) -> usize {
-    h.iter()
-        .position(|x| x == name)
-        .unwrap_or_else(|| panic!("no column {name}"))
-}
 
 /// Runs `saltus ARGS... -` on `book`; returns (exit code, header, rows, stderr).
 fn run(args: &[&str], book: &str) -> (Option<i32>, Vec<String>, Vec<Vec<String>>, String) {

@@ -1,31 +1,7 @@
 //! The `price` command's CSV contract, run through the real binary.
 
-use assert_cmd::Command;
+use crate::common::{col, read_csv, saltus, HEADER};
 use std::fs;
-
-const HEADER: &str = "kind,spot,strike,expiry,rate,vol,jump_rate,jump_mean,jump_vol";
-
-fn saltus() -> Command {
-    Command::cargo_bin("saltus").unwrap()
-}
-
-fn read_csv(text: &str) -> (Vec<String>, Vec<Vec<String>>) {
-    let mut r = csv::ReaderBuilder::new()
-        .flexible(true)
-        .from_reader(text.as_bytes());
-    let h = r.headers().unwrap().iter().map(String::from).collect();
-    let rows = r
-        .records()
-        .map(|x| x.unwrap().iter().map(String::from).collect())
-        .collect();
-    (h, rows)
-}
-
-fn col(h: &[String], name: &str) -> usize {
-    h.iter()
-        .position(|x| x == name)
-        .unwrap_or_else(|| panic!("no column {name}"))
-}
 
 #[test]
 fn column_order_and_case_do_not_matter() {

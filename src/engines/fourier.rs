@@ -67,7 +67,7 @@ pub enum FourierError {
     },
     /// The integral or its error estimate is not a finite number (inputs
     /// whose scale is outside double precision).
-    #[error("fourier result is not a finite number (price {price}, error estimate {estimate}); this row is outside the supported range")]
+    #[error("fourier result is not a finite number; this row is outside the supported range")]
     NotFinite {
         /// Price reached.
         price: f64,
