@@ -215,7 +215,7 @@ fn issue8_a_non_finite_position_value_is_a_row_error() {
         .output()
         .unwrap();
     assert_eq!(out.status.code(), Some(1));
-    let (h, rows) = read_csv(&fs::read(report.join("positions.csv")).unwrap());
+    let (h, rows) = read_csv(fs::read(report.join("positions.csv")).unwrap());
     assert_eq!(rows.len(), 2);
     assert!(
         rows[0][col(&h, "status")].starts_with("error: line 2: position_value is not finite"),
@@ -228,7 +228,7 @@ fn issue8_a_non_finite_position_value_is_a_row_error() {
     for entry in fs::read_dir(&report).unwrap() {
         let path = entry.unwrap().path();
         if path.extension().is_some_and(|e| e == "csv") {
-            let (h, rows) = read_csv(&fs::read(&path).unwrap());
+            let (h, rows) = read_csv(fs::read(&path).unwrap());
             for r in rows {
                 for (name, v) in h.iter().zip(&r) {
                     if let Ok(x) = v.parse::<f64>() {

@@ -134,7 +134,10 @@ fn general_kind(field: &[u8]) -> Result<OptionKind, String> {
     match raw.parse() {
         Ok(k) => Ok(k),
         Err(()) if raw.is_empty() => Err("kind is missing".into()),
-        Err(()) => Err(format!("kind '{}' is not call or put", shown(raw.as_bytes()))),
+        Err(()) => Err(format!(
+            "kind '{}' is not call or put",
+            shown(raw.as_bytes())
+        )),
     }
 }
 
