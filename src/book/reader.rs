@@ -3,7 +3,9 @@
 //!
 //! Numbers in messages are shown as written in the field, or in short form
 //! ([`Short`]); a value that is nearly right (`32%`, `1,000`, `0,32`) is
-//! still refused, with the fix in the message.
+//! still refused, with the fix in the message. Field text in a message has
+//! its control characters escaped and is cut after [`MAX_SHOWN_CHARS`]
+//! characters (the echoed field keeps every byte).
 
 use super::records::Record;
 use super::schema::Schema;
@@ -108,6 +110,23 @@ fn text(field: &[u8]) -> Result<&str, String> {
     }
 }
 
+/// Longest field text quoted in a message, in characters; a longer value
+/// is shown by its start and its length in bytes.
+pub const MAX_SHOWN_CHARS: usize = 40;
+/// Longest field, in bytes, for which a message suggests how to write it.
+const MAX_HINT_BYTES: usize = 100;
+
+/// A field's text for a message: control characters escaped, a long value
+/// cut to its first [`MAX_SHOWN_CHARS`] characters and its length.
+fn shown(raw: &[u8]) -> String {
+    let s = String::from_utf8_lossy(raw);
+    if s.chars().nth(MAX_SHOWN_CHARS).is_none() {
+        return s.escape_debug().to_string();
+    }
+    let head: String = s.chars().take(MAX_SHOWN_CHARS).collect();
+    format!("{}... ({} bytes)", head.escape_debug(), raw.len())
+}
+
 /// `kind` in any other spelling: any case, surrounding spaces.
 #[cold]
 fn general_kind(field: &[u8]) -> Result<OptionKind, String> {
@@ -115,7 +134,10 @@ fn general_kind(field: &[u8]) -> Result<OptionKind, String> {
     match raw.parse() {
         Ok(k) => Ok(k),
         Err(()) if raw.is_empty() => Err("kind is missing".into()),
-        Err(()) => Err(format!("kind '{}' is not call or put", raw.escape_debug())),
+        Err(()) => Err(format!(
+            "kind '{}' is not call or put",
+            shown(raw.as_bytes())
+        )),
     }
 }
 
@@ -135,17 +157,17 @@ fn general_number(raw: &[u8], name: &str) -> Result<f64, String> {
     if raw.is_empty() {
         return Err(format!("{name} is missing"));
     }
-    // Control characters are shown escaped, never written raw.
-    let shown = || String::from_utf8_lossy(raw).escape_debug().to_string();
     match fast_float2::parse::<f64, _>(raw) {
         Ok(v) if v.is_infinite() && !raw.iter().any(|c| c.eq_ignore_ascii_case(&b'i')) => Err(
-            format!("{name} = {} is too large for double precision", shown()),
+            format!("{name} = {} is too large for double precision", shown(raw)),
         ),
         Ok(v) => Ok(v),
-        Err(_) => Err(match number_hint(raw) {
-            Some(hint) => format!("{name} is not a number: '{}' ({hint})", shown()),
-            None => format!("{name} is not a number: '{}'", shown()),
-        }),
+        Err(_) => Err(
+            match number_hint(raw).filter(|_| raw.len() <= MAX_HINT_BYTES) {
+                Some(hint) => format!("{name} is not a number: '{}' ({hint})", shown(raw)),
+                None => format!("{name} is not a number: '{}'", shown(raw)),
+            },
+        ),
     }
 }
 

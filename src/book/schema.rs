@@ -18,6 +18,21 @@ pub const REQUIRED: [&str; 9] = [
 /// Columns a book may have, with their defaults: `id` (row number),
 /// `underlying` (empty), `div_yield` (0), `quantity` (1), `multiplier` (1).
 pub const OPTIONAL: [&str; 5] = ["id", "underlying", "div_yield", "quantity", "multiplier"];
+/// Every known column: [`REQUIRED`] then [`OPTIONAL`], in that order (for
+/// tests and tools that build books).
+pub const COLUMNS: [&str; REQUIRED.len() + OPTIONAL.len()] = {
+    let mut all = [""; REQUIRED.len() + OPTIONAL.len()];
+    let mut i = 0;
+    while i < all.len() {
+        all[i] = if i < REQUIRED.len() {
+            REQUIRED[i]
+        } else {
+            OPTIONAL[i - REQUIRED.len()]
+        };
+        i += 1;
+    }
+    all
+};
 
 /// A problem with the header row; reported before any output is written.
 #[derive(Debug, Clone, PartialEq, thiserror::Error)]
