@@ -13,7 +13,8 @@
 //! - [`reports`]: the three-engine cross-check behind model validation
 //!   ([`reports::crosscheck`]), exposures and scenarios ([`reports::risk`])
 //!   and the risk report's CSV and HTML files ([`reports::risk_report`]);
-//! - [`book`]: the CSV book schema, streaming reader and writer.
+//! - [`book`]: the CSV book schema, streaming reader and writer;
+//! - [`market`]: calendar dates and fitted parameter sets read from files.
 //!
 //! ```
 //! use saltus::model::{Contract, JumpParams, OptionKind};
@@ -29,6 +30,7 @@ pub mod black_scholes;
 pub mod book;
 pub mod engines;
 pub mod greeks;
+pub mod market;
 pub mod model;
 #[rustfmt::skip]
 mod mills_table;

@@ -4,6 +4,7 @@
 mod book_contract_cli;
 mod common;
 mod crosscheck_cli;
+mod dates_cli;
 mod engine_limits_cli;
 mod finite_diff;
 mod fourier;
@@ -13,6 +14,7 @@ mod identities;
 mod monte_carlo;
 #[cfg(target_os = "linux")] // /dev/full, kill(1), ulimit
 mod output_safety_cli;
+mod params_cli;
 mod pide;
 mod price_cli;
 mod properties;

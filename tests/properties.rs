@@ -162,9 +162,23 @@ proptest! {
 // ---------------------------------------------------------------- numbers --
 
 /// A header with every column, in schema order (rate is field 4, quantity 12).
-const ALL: [&str; 14] = saltus::book::schema::COLUMNS;
-const VALID: [&str; 14] = [
-    "call", "100", "95", "0.5", "0.03", "0.2", "0.5", "-0.1", "0.15", "x1", "U", "0.01", "2", "10",
+const ALL: [&str; 15] = saltus::book::schema::COLUMNS;
+const VALID: [&str; 15] = [
+    "call",
+    "100",
+    "95",
+    "0.5",
+    "0.03",
+    "0.2",
+    "0.5",
+    "-0.1",
+    "0.15",
+    "x1",
+    "U",
+    "0.01",
+    "2",
+    "10",
+    "2026-12-01",
 ];
 
 fn schema_of(names: &[impl AsRef<[u8]>]) -> Schema {

@@ -10,6 +10,7 @@
 use super::records::Record;
 use super::schema::Schema;
 use crate::engines::monte_carlo;
+use crate::market::dates;
 use crate::model::{Contract, JumpParams, OptionKind, Short};
 use std::borrow::Cow;
 use std::fmt;
@@ -296,6 +297,54 @@ fn optional_number(
     }
 }
 
+/// The `expiry` field: a year fraction, or (with a valuation date from the
+/// row's `valuation_date` field or the run) an ISO 8601 date turned into
+/// an ACT/365 fixed year fraction.
+#[inline(always)]
+fn expiry(schema: &Schema, rec: &Record) -> Result<f64, String> {
+    let raw = rec.get(schema.expiry).unwrap_or(b"");
+    plain_decimal(raw).map_or_else(|| general_expiry(schema, rec, raw), Ok)
+}
+
+#[cold]
+#[inline(never)]
+fn general_expiry(schema: &Schema, rec: &Record, raw: &[u8]) -> Result<f64, String> {
+    let as_number = general_number(raw, "expiry");
+    let field = match text(raw) {
+        Ok(t) if as_number.is_err() && dates::looks_like_date(t) => t,
+        _ => return as_number,
+    };
+    let valuation = match schema.valuation_date {
+        Some(i) => {
+            let v = text(rec.get(i).unwrap_or(b"")).map_err(|e| format!("valuation_date {e}"))?;
+            dates::valuation_field(v, schema.inputs.valuation_date)?
+        }
+        None => schema.inputs.valuation_date,
+    };
+    dates::dated_expiry("expiry", field, valuation)
+}
+
+/// `vol, jump_rate, jump_mean, jump_vol`: from the book's columns, or from
+/// the row's underlying's fitted set (`--params`).
+#[inline(always)]
+fn model_params(schema: &Schema, rec: &Record) -> Result<(f64, f64, f64, f64), String> {
+    if let Some(params) = &schema.inputs.params {
+        let underlying = match schema.underlying {
+            Some(i) => text(rec.get(i).unwrap_or(b"")).map_err(|e| format!("underlying {e}"))?,
+            None => "",
+        };
+        let p = params.get(underlying)?;
+        return Ok((p.vol, p.jump_rate, p.jump_mean, p.jump_vol));
+    }
+    let col = |i: Option<usize>| i.expect("model columns are required without --params");
+    Ok((
+        number(rec, col(schema.vol), "vol")?,
+        number(rec, col(schema.jump_rate), "jump_rate")?,
+        number(rec, col(schema.jump_mean), "jump_mean")?,
+        number(rec, col(schema.jump_vol), "jump_vol")?,
+    ))
+}
+
 /// Parses and validates one data record.
 ///
 /// # Errors
@@ -336,12 +385,9 @@ pub fn parse_row<'a>(
     };
     let spot = number(rec, schema.spot, "spot").map_err(err)?;
     let strike = number(rec, schema.strike, "strike").map_err(err)?;
-    let expiry = number(rec, schema.expiry, "expiry").map_err(err)?;
+    let expiry = expiry(schema, rec).map_err(err)?;
     let rate = number(rec, schema.rate, "rate").map_err(err)?;
-    let vol = number(rec, schema.vol, "vol").map_err(err)?;
-    let jump_rate = number(rec, schema.jump_rate, "jump_rate").map_err(err)?;
-    let jump_mean = number(rec, schema.jump_mean, "jump_mean").map_err(err)?;
-    let jump_vol = number(rec, schema.jump_vol, "jump_vol").map_err(err)?;
+    let (vol, jump_rate, jump_mean, jump_vol) = model_params(schema, rec).map_err(err)?;
     let div_yield = optional_number(rec, schema.div_yield, "div_yield", 0.0).map_err(err)?;
     let quantity = optional_number(rec, schema.quantity, "quantity", 1.0).map_err(err)?;
     let multiplier = optional_number(rec, schema.multiplier, "multiplier", 1.0).map_err(err)?;

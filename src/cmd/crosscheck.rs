@@ -105,6 +105,8 @@ pub struct Args {
         allow_negative_numbers = true
     )]
     pub allow_disagree: u64,
+    #[command(flatten)]
+    pub inputs: super::book_inputs::BookInputArgs,
     /// No progress bar and no summary on stderr.
     #[arg(short, long)]
     pub quiet: bool,
@@ -237,6 +239,7 @@ pub fn run(args: Args) -> Result<ExitCode> {
     ];
     let opts = PipelineOptions {
         result_columns: columns.iter().map(|s| s.to_string()).collect(),
+        inputs: args.inputs.inputs()?,
     };
     let records = Mutex::new(Vec::new());
     let bar = progress(&args);

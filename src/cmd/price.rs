@@ -38,6 +38,8 @@ pub struct Args {
     /// Also write `truncation_bound`, the rigorous bound on the series truncation error.
     #[arg(long)]
     pub with_bound: bool,
+    #[command(flatten)]
+    pub inputs: super::book_inputs::BookInputArgs,
     /// No summary on stderr.
     #[arg(short, long)]
     pub quiet: bool,
@@ -57,7 +59,10 @@ pub fn run(args: Args) -> Result<ExitCode> {
     }
     result_columns.push("terms".into());
     result_columns.push("status".into());
-    let opts = PipelineOptions { result_columns };
+    let opts = PipelineOptions {
+        result_columns,
+        inputs: args.inputs.inputs()?,
+    };
     let worst_rel_bound = AtomicU64::new(0);
     let input = open_input(&args.book)?;
     let mut output = Output::open(args.output.as_deref(), &args.book)?;

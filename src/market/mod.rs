@@ -1,0 +1,4 @@
+//! market/: dates, quotes, implied vol, calibration.
+
+pub mod dates;
+pub mod params;
