@@ -1,0 +1,4 @@
+//! The market side: calendar dates, quotes, Black-Scholes implied
+//! volatility and the calibration of the Merton parameters to quotes.
+
+pub mod implied_vol;
