@@ -141,6 +141,15 @@ fn taylor(u: f64, t: f64) -> f64 {
     -2.0 * sum
 }
 
+/// `(e^{x/2} - b(x, s)) / vega` for `x <= 0` and `s >= sqrt(2|x|)` (so
+/// `h + t >= 0`): `R(h + t) + R(t - h)`, the distance to the upper bound in
+/// units of the vega (the same identity as for `D`), from two Mills ratios
+/// and no exponential.
+#[inline]
+pub fn complement_vega_ratio(h: f64, t: f64) -> f64 {
+    mills_any(h + t) + mills_ratio(t - h)
+}
+
 /// The log-moneyness `x = ln(F/K) = ln(S/K) + (r - q) T`, with `ln(S/K)` as
 /// `ln_1p((S - K)/K)` when `S/K` is within a factor of two (`S - K` is then
 /// exact), so that near the money `x` carries a relative rather than an

@@ -23,7 +23,9 @@
 //! the price in the volatility (docs/implied_vol.md).
 
 use crate::model::OptionKind;
-use crate::normalised_black::{ln_vega, log_moneyness, otm_call, otm_call_complement, vega_ratio};
+use crate::normalised_black::{
+    complement_vega_ratio, ln_vega, log_moneyness, otm_call, vega_ratio,
+};
 use std::fmt;
 
 /// A time value at most this many ulps of the intrinsic value (times
@@ -31,7 +33,7 @@ use std::fmt;
 const TIME_VALUE_ULPS: f64 = 4.0;
 /// Householder iterations stop after a step below this relative size (the
 /// next error is of the order of its cube).
-const STEP_REL_TOL: f64 = 1e-11;
+const STEP_REL_TOL: f64 = 1e-8;
 /// Most Householder / bisection steps (two to four are usual).
 const MAX_STEPS: usize = 40;
 /// Above this fraction of its upper bound `e^{x/2}` a normalised price is
@@ -305,9 +307,16 @@ pub fn total_vol(x: f64, beta: f64, ex2: f64) -> f64 {
     let sc = (-2.0 * x).sqrt();
     let bc = if sc > 0.0 { otm_call(x, sc) } else { 0.0 };
     if beta <= bc {
-        log_price_branch(x, beta, lower_start(x, beta, sc), 0.0, sc)
+        log_price_branch(x, beta, ex2, lower_start(x, beta, sc), 0.0, sc)
     } else if beta <= UPPER_OBJECTIVE_FRACTION * ex2 {
-        log_price_branch(x, beta, upper_start(x, beta, ex2, sc), sc, f64::INFINITY)
+        log_price_branch(
+            x,
+            beta,
+            ex2,
+            upper_start(x, beta, ex2, sc),
+            sc,
+            f64::INFINITY,
+        )
     } else {
         upper_branch(x, beta, ex2, sc)
     }
@@ -381,7 +390,7 @@ fn next_iterate(s: f64, step: f64, lo: f64, hi: f64) -> Option<f64> {
 }
 
 /// Solve `ln b(s) = ln beta` from `s` inside the bracket `(lo, hi)`.
-fn log_price_branch(x: f64, beta: f64, mut s: f64, mut lo: f64, mut hi: f64) -> f64 {
+fn log_price_branch(x: f64, beta: f64, ex2: f64, mut s: f64, mut lo: f64, mut hi: f64) -> f64 {
     let ln_beta = beta.ln();
     for _ in 0..MAX_STEPS {
         let h = x / s;
@@ -392,8 +401,10 @@ fn log_price_branch(x: f64, beta: f64, mut s: f64, mut lo: f64, mut hi: f64) -> 
             let d = vega_ratio(h, t);
             (lv + d.ln(), 1.0 / d)
         } else {
-            let b = otm_call(x, s);
-            (b.ln(), lv.exp() / b)
+            // b = e^{x/2} - vega (R(h+t) + R(t-h)): not small here.
+            let vega = lv.exp();
+            let b = ex2 - vega * complement_vega_ratio(h, t);
+            (b.ln(), vega / b)
         };
         let g = ln_b - ln_beta;
         if g == 0.0 {
@@ -424,8 +435,9 @@ fn upper_branch(x: f64, beta: f64, ex2: f64, sc: f64) -> f64 {
     for _ in 0..MAX_STEPS {
         let h = x / s;
         let t = 0.5 * s;
-        let c = otm_call_complement(x, s, ex2);
-        let g = c.ln() - ln_target;
+        // c = e^{x/2} - b = vega * m, so ln c and c'/c = -1/m need no exponential.
+        let m = complement_vega_ratio(h, t);
+        let g = ln_vega(h, t) + m.ln() - ln_target;
         if g == 0.0 {
             break;
         }
@@ -434,7 +446,7 @@ fn upper_branch(x: f64, beta: f64, ex2: f64, sc: f64) -> f64 {
         } else {
             lo = lo.max(s);
         }
-        let r = -ln_vega(h, t).exp() / c;
+        let r = -1.0 / m;
         let (a, b) = vega_log_derivatives(x, s);
         let step = householder(g, r, a - r, b - 3.0 * a * r + 2.0 * r * r);
         s = match next_iterate(s, step, lo, hi) {
