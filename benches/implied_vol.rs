@@ -10,6 +10,7 @@ use saltus::market::implied_vol::{implied_vol, implied_vols, VolQuote};
 use saltus::model::OptionKind;
 use std::hint::black_box;
 
+#[allow(dead_code)] // the typical book is for the other benchmarks
 mod common;
 
 fn quotes(n: usize) -> Vec<VolQuote> {
