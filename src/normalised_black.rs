@@ -179,7 +179,8 @@ pub fn ln_vega(h: f64, t: f64) -> f64 {
 /// ```
 /// // At the money b(0, s) = 1 - 2 Phi(-s/2).
 /// let b = saltus::normalised_black::otm_call(0.0, 0.5);
-/// assert!((b / 0.197_412_651_365_847_45 - 1.0).abs() < 1e-15); // mpmath, 30 digits
+/// // mpmath, 30 digits; the Mills-ratio difference costs about 7 ulps here.
+/// assert!((b / 0.197_412_651_365_847_45 - 1.0).abs() < 4e-15);
 /// ```
 #[inline]
 pub fn otm_call(x: f64, s: f64) -> f64 {
