@@ -11,6 +11,8 @@ mod fourier;
 mod fuzz_cli;
 mod fuzz_regressions;
 mod identities;
+mod implied_vol;
+mod implied_vol_cli;
 mod monte_carlo;
 #[cfg(target_os = "linux")] // /dev/full, kill(1), ulimit
 mod output_safety_cli;

@@ -108,7 +108,9 @@ pub struct FailedRecord<'a> {
 ///
 /// `process` receives each row that parsed and validated, and appends every
 /// result column except the last (`status`) through the [`RowWriter`]; it
-/// returns `Ok(())` or an error message. On error (or when the row did not
+/// returns `Ok(())` or an error message. A row that is complete except for a
+/// field left empty on purpose calls [`RowWriter::set_warning`]: its fields
+/// are kept and its status is `warning: line N: message` (counted as failed). On error (or when the row did not
 /// parse, or a number it pushed is NaN or infinite) the pipeline discards
 /// any partial fields, writes empty result fields and a status
 /// `error: line N: problem`.
@@ -349,8 +351,9 @@ where
             let done = process(&r, &mut w, &mut state);
             // The safety net under every command: no NaN or inf in an ok row.
             let non_finite = w.non_finite();
+            let warning = w.take_warning();
             done.and_then(|()| match non_finite {
-                None => Ok(()),
+                None => Ok(warning),
                 Some((i, v)) => Err(non_finite_message(
                     columns.get(i).map_or("a result", String::as_str),
                     v,
@@ -362,7 +365,16 @@ where
             })
         });
         match outcome {
-            Ok(()) => buf.extend_from_slice(b",ok"),
+            Ok(None) => buf.extend_from_slice(b",ok"),
+            Ok(Some(warning)) => {
+                // Fields kept; the status says which one is empty and why.
+                failed += 1;
+                let msg = format!("line {line}: {warning}");
+                RowWriter::new(&mut buf).push_str(&format!("warning: {msg}"));
+                if errors.len() < MAX_REPORTED_ERRORS {
+                    errors.push(msg);
+                }
+            }
             Err(e) => {
                 failed += 1;
                 buf.truncate(echo);
