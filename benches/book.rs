@@ -47,7 +47,10 @@ fn bench(c: &mut Criterion) {
     let mut result_columns: Vec<String> = RAW_COLUMNS.iter().map(|s| s.to_string()).collect();
     result_columns.push("terms".into());
     result_columns.push("status".into());
-    let opts = PipelineOptions { result_columns };
+    let opts = PipelineOptions {
+        result_columns,
+        ..Default::default()
+    };
     let mut g = c.benchmark_group("book");
     g.sample_size(10);
     g.throughput(Throughput::Elements(rows as u64));

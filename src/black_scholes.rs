@@ -13,11 +13,37 @@
 use crate::greeks::Greeks;
 use crate::model::OptionKind;
 use crate::normal::{norm_cdf, norm_pdf};
+use crate::normalised_black::{log_moneyness, otm_call};
 
 /// Black-Scholes price. Exact at the edges: `T = 0` gives the intrinsic
 /// value, `sigma = 0` the discounted intrinsic value of the forward.
+///
+/// The value is the discounted intrinsic value of the forward plus the
+/// out-of-the-money time value from the normalised Black function
+/// ([`crate::normalised_black`]), so deep out-of-the-money prices come from
+/// the tails directly and keep their relative precision.
 pub fn price(kind: OptionKind, s: f64, k: f64, t: f64, r: f64, q: f64, sigma: f64) -> f64 {
-    greeks(kind, s, k, t, r, q, sigma).price
+    let v = sigma * t.sqrt();
+    if t == 0.0 || v == 0.0 {
+        return greeks(kind, s, k, t, r, q, sigma).price;
+    }
+    let x = log_moneyness(s, k, r, q, t);
+    otm_sum(kind.sign(), s * (-q * t).exp(), k * (-r * t).exp(), x, v)
+}
+
+/// The intrinsic value `w (se - kd)` on the in-the-money side plus the out-of-the-money
+/// time value `sqrt(se kd) b(-|x|, v)`: a sum of positive numbers.
+#[inline]
+fn otm_sum(w: f64, se: f64, kd: f64, x: f64, v: f64) -> f64 {
+    let scale = se.sqrt() * kd.sqrt();
+    // The intrinsic value as 2 sqrt(se kd) sinh(x/2), not se - kd: with
+    // x = ln(S/K) + (r - q) T it keeps its relative precision at the money.
+    let intrinsic = if w * x > 0.0 {
+        2.0 * scale * (0.5 * x.abs()).sinh()
+    } else {
+        0.0
+    };
+    intrinsic + scale * otm_call(-x.abs(), v)
 }
 
 /// Black-Scholes price and the Greeks in raw units (the jump sensitivities
@@ -45,7 +71,7 @@ pub fn greeks(kind: OptionKind, s: f64, k: f64, t: f64, r: f64, q: f64, sigma: f
     let dr = (-r * t).exp();
     let sq_t = t.sqrt();
     let v = sigma * sq_t;
-    let x = (s / k).ln() + (r - q) * t;
+    let x = log_moneyness(s, k, r, q, t);
     if v == 0.0 {
         let m = w * x;
         let (n1, n2) = if m > 0.0 {
@@ -79,7 +105,7 @@ pub fn greeks(kind: OptionKind, s: f64, k: f64, t: f64, r: f64, q: f64, sigma: f
     let se = s * dq;
     let kd = k * dr;
     Greeks {
-        price: w * (se * n1 - kd * n2),
+        price: otm_sum(w, se, kd, x, v),
         delta: w * dq * n1,
         gamma: dq * pdf / (s * v),
         vega: se * pdf * sq_t,

@@ -3,7 +3,8 @@
 //! The library is organised by concept:
 //! - [`model`]: the validated contract and jump parameters (the conventions);
 //! - [`normal`], [`poisson`]: the special functions everything rests on;
-//! - [`black_scholes`]: the Black-Scholes kernel;
+//! - [`black_scholes`]: the Black-Scholes kernel, and [`normalised_black`]
+//!   (Jäckel's normalised Black function, accurate in every region);
 //! - [`engines`]: the common engine interface and the engines behind it:
 //!   [`engines::series`] (the closed-form Merton series with analytic Greeks),
 //!   [`engines::fourier`] (Lewis characteristic-function price) and
@@ -14,7 +15,8 @@
 //!   ([`reports::crosscheck`]), exposures and scenarios ([`reports::risk`])
 //!   and the risk report's CSV and HTML files ([`reports::risk_report`]);
 //! - [`book`]: the CSV book schema, streaming reader and writer;
-//! - [`market`]: quotes, implied volatility and calibration.
+//! - [`market`]: calendar dates, fitted parameter sets, quotes, implied
+//!   volatility ([`market::implied_vol`]) and calibration.
 //!
 //! ```
 //! use saltus::model::{Contract, JumpParams, OptionKind};
@@ -35,6 +37,7 @@ pub mod model;
 #[rustfmt::skip]
 mod mills_table;
 pub mod normal;
+pub mod normalised_black;
 pub mod poisson;
 pub mod reports;
 #[cfg(test)]

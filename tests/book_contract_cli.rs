@@ -5,31 +5,10 @@
 //! no NaN or inf in an `ok` row. Expected fields come from the `csv` crate
 //! reading the same input, or are written out by hand.
 
-use assert_cmd::Command;
+use crate::common::{col, read_csv, saltus, HEADER};
 use std::fs;
 
-const HEADER: &str = "kind,spot,strike,expiry,rate,vol,jump_rate,jump_mean,jump_vol";
 const ROW: &str = "call,100,95,0.5,0.03,0.2,0.5,-0.1,0.15";
-
-fn saltus() -> Command {
-    Command::cargo_bin("saltus").unwrap()
-}
-
-fn read_csv(text: &[u8]) -> (Vec<String>, Vec<Vec<String>>) {
-    let mut r = csv::ReaderBuilder::new().flexible(true).from_reader(text);
-    let h = r.headers().unwrap().iter().map(String::from).collect();
-    let rows = r
-        .records()
-        .map(|x| x.unwrap().iter().map(String::from).collect())
-        .collect();
-    (h, rows)
-}
-
-fn col(h: &[String], name: &str) -> usize {
-    h.iter()
-        .position(|x| x == name)
-        .unwrap_or_else(|| panic!("no column {name}"))
-}
 
 /// Runs `saltus ARGS... -` on `book`; returns (exit code, header, rows, stderr).
 fn run(args: &[&str], book: &str) -> (Option<i32>, Vec<String>, Vec<Vec<String>>, String) {
@@ -236,7 +215,7 @@ fn issue8_a_non_finite_position_value_is_a_row_error() {
         .output()
         .unwrap();
     assert_eq!(out.status.code(), Some(1));
-    let (h, rows) = read_csv(&fs::read(report.join("positions.csv")).unwrap());
+    let (h, rows) = read_csv(fs::read(report.join("positions.csv")).unwrap());
     assert_eq!(rows.len(), 2);
     assert!(
         rows[0][col(&h, "status")].starts_with("error: line 2: position_value is not finite"),
@@ -249,7 +228,7 @@ fn issue8_a_non_finite_position_value_is_a_row_error() {
     for entry in fs::read_dir(&report).unwrap() {
         let path = entry.unwrap().path();
         if path.extension().is_some_and(|e| e == "csv") {
-            let (h, rows) = read_csv(&fs::read(&path).unwrap());
+            let (h, rows) = read_csv(fs::read(&path).unwrap());
             for r in rows {
                 for (name, v) in h.iter().zip(&r) {
                     if let Ok(x) = v.parse::<f64>() {

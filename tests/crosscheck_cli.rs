@@ -151,3 +151,49 @@ fn target_se_and_bad_options() {
         .unwrap();
     assert_eq!(bad.status.code(), Some(2));
 }
+
+#[test]
+fn issue8_fourier_failure_and_undefined_martingale_z_give_inconclusive_verdicts_in_words() {
+    // Strike 1e300 and spot 1e-300 calls: the Fourier error estimate
+    // (about 7e135 and 7e-165) exceeds the whole price range (0 to 100, 0 to
+    // 1e-300; docs/engines.md), so the Fourier engine fails; the row keeps
+    // its series and Monte Carlo results with an inconclusive verdict. The
+    // jump_mean 20 put: every simulated terminal price alike (the martingale
+    // z-score was written as -inf in a row with status ok).
+    let rows = [
+        "k,call,100,1e300,0.5,0.03,0.2,0.5,-0.1,0.15",
+        "s,call,1e-300,100,0.5,0.03,0.2,0.5,-0.1,0.15",
+        "z,put,100,100,0.5,0.02,0.2,0.5,20,0.1",
+    ];
+    let (code, got, h, err) = run(&book(&rows), &[]);
+    assert!(matches!(code, Some(0) | Some(1)), "{err}");
+    let col = |name: &str| h.iter().position(|x| x == name).unwrap();
+    for row in &got[..2] {
+        assert_eq!(&row[col("status")], "ok", "{row:?}");
+        let verdict = &row[col("verdict")];
+        assert!(
+            verdict.starts_with("inconclusive: fourier engine failed: fourier error estimate")
+                && verdict.contains("exceeds the whole range"),
+            "{verdict}"
+        );
+        assert_eq!(&row[col("price_fourier")], "");
+        assert_eq!(&row[col("fourier_gap")], "");
+        for name in ["price_series", "price_mc", "mc_stderr"] {
+            assert!(
+                row[col(name)].parse::<f64>().is_ok_and(f64::is_finite),
+                "{name}: {row:?}"
+            );
+        }
+    }
+    let verdict = &got[2][col("verdict")];
+    assert!(verdict.starts_with("inconclusive: "), "{verdict}");
+    for row in &got {
+        let v = row[col("verdict")].to_ascii_lowercase();
+        for word in v.split(|c: char| !(c.is_ascii_alphanumeric() || c == '.' || c == '-')) {
+            assert!(
+                word.parse::<f64>().is_ok_and(f64::is_finite) || word.parse::<f64>().is_err(),
+                "non-finite number '{word}' in verdict '{v}'"
+            );
+        }
+    }
+}

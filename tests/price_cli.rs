@@ -1,31 +1,7 @@
 //! The `price` command's CSV contract, run through the real binary.
 
-use assert_cmd::Command;
+use crate::common::{col, read_csv, saltus, HEADER};
 use std::fs;
-
-const HEADER: &str = "kind,spot,strike,expiry,rate,vol,jump_rate,jump_mean,jump_vol";
-
-fn saltus() -> Command {
-    Command::cargo_bin("saltus").unwrap()
-}
-
-fn read_csv(text: &str) -> (Vec<String>, Vec<Vec<String>>) {
-    let mut r = csv::ReaderBuilder::new()
-        .flexible(true)
-        .from_reader(text.as_bytes());
-    let h = r.headers().unwrap().iter().map(String::from).collect();
-    let rows = r
-        .records()
-        .map(|x| x.unwrap().iter().map(String::from).collect())
-        .collect();
-    (h, rows)
-}
-
-fn col(h: &[String], name: &str) -> usize {
-    h.iter()
-        .position(|x| x == name)
-        .unwrap_or_else(|| panic!("no column {name}"))
-}
 
 #[test]
 fn column_order_and_case_do_not_matter() {
@@ -45,8 +21,8 @@ fn column_order_and_case_do_not_matter() {
     let out_a = saltus().arg("price").arg(&a).output().unwrap();
     let out_b = saltus().arg("price").arg(&b).output().unwrap();
     assert!(out_a.status.success() && out_b.status.success());
-    let (ha, ra) = read_csv(&String::from_utf8(out_a.stdout).unwrap());
-    let (hb, rb) = read_csv(&String::from_utf8(out_b.stdout).unwrap());
+    let (ha, ra) = read_csv(String::from_utf8(out_a.stdout).unwrap());
+    let (hb, rb) = read_csv(String::from_utf8(out_b.stdout).unwrap());
     for name in ["price", "delta", "vega", "d_jump_vol", "terms", "status"] {
         assert_eq!(ra[0][col(&ha, name)], rb[0][col(&hb, name)], "{name}");
     }
@@ -81,7 +57,7 @@ fn bad_rows_are_kept_in_order_with_a_status() {
         .output()
         .unwrap();
     assert_eq!(out.status.code(), Some(1), "exit code 1 when rows failed");
-    let (h, rows) = read_csv(&String::from_utf8(out.stdout).unwrap());
+    let (h, rows) = read_csv(String::from_utf8(out.stdout).unwrap());
     assert_eq!(rows.len(), 8, "row count in == row count out");
     let st = col(&h, "status");
     let price = col(&h, "price");
@@ -155,7 +131,7 @@ fn writes_to_a_file_and_desk_units_rename_columns() {
         .arg(&out)
         .assert()
         .success();
-    let (h, raw) = read_csv(&fs::read_to_string(&out).unwrap());
+    let (h, raw) = read_csv(fs::read_to_string(&out).unwrap());
     saltus()
         .arg("price")
         .arg(&book)
@@ -164,7 +140,7 @@ fn writes_to_a_file_and_desk_units_rename_columns() {
         .arg("--desk-units")
         .assert()
         .success();
-    let (hd, desk) = read_csv(&fs::read_to_string(&out).unwrap());
+    let (hd, desk) = read_csv(fs::read_to_string(&out).unwrap());
     assert!(!hd.contains(&"vega".to_string()) && !hd.contains(&"theta".to_string()));
     let v: f64 = raw[0][col(&h, "vega")].parse().unwrap();
     let v1: f64 = desk[0][col(&hd, "vega_1pt")].parse().unwrap();
@@ -181,7 +157,7 @@ fn output_columns_are_the_documented_ones() {
         .write_stdin(format!("{HEADER}\ncall,100,100,1,0.02,0.2,0,0,0\n"))
         .output()
         .unwrap();
-    let (h, rows) = read_csv(&String::from_utf8(out.stdout).unwrap());
+    let (h, rows) = read_csv(String::from_utf8(out.stdout).unwrap());
     let tail: Vec<&str> = h[9..].iter().map(String::as_str).collect();
     assert_eq!(
         tail,
@@ -210,7 +186,7 @@ fn demo_book_prices_with_its_deliberate_bad_rows() {
     let book = concat!(env!("CARGO_MANIFEST_DIR"), "/data/demo_book.csv");
     let out = saltus().args(["price", book]).output().unwrap();
     assert_eq!(out.status.code(), Some(1));
-    let (h, rows) = read_csv(&String::from_utf8(out.stdout).unwrap());
+    let (h, rows) = read_csv(String::from_utf8(out.stdout).unwrap());
     let n_in = fs::read_to_string(book).unwrap().lines().count() - 1;
     assert_eq!(rows.len(), n_in);
     let st = col(&h, "status");
@@ -244,7 +220,7 @@ fn windows_line_endings_keep_line_numbers_right() {
         .write_stdin(book)
         .output()
         .unwrap();
-    let (h, rows) = read_csv(&String::from_utf8(out.stdout).unwrap());
+    let (h, rows) = read_csv(String::from_utf8(out.stdout).unwrap());
     assert_eq!(
         rows[1][col(&h, "status")],
         "error: line 3: vol must not be negative, got -1"

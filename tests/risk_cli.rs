@@ -803,6 +803,7 @@ fn pipeline_state_is_per_chunk_and_merged_in_chunk_order() {
     }
     let opts = PipelineOptions {
         result_columns: vec!["x".into(), "status".into()],
+        ..Default::default()
     };
     for threads in [1, 2, 3] {
         let pool = rayon::ThreadPoolBuilder::new()

@@ -16,7 +16,8 @@ pub mod writer;
 
 pub use pipeline::{
     run_book, run_book_with_state, BookSummary, ChunkState, FailedRecord, PipelineOptions,
+    EXPIRY_YEARS,
 };
 pub use reader::{parse_row, BookRow, RowError};
-pub use schema::{Schema, SchemaError};
+pub use schema::{BookInputs, Schema, SchemaError};
 pub use streams::StreamKeys;

@@ -16,7 +16,7 @@
 
 use super::reader::{parse_row, BookRow, RowError};
 use super::records::{Record, RecordReader};
-use super::schema::{Schema, SchemaError};
+use super::schema::{BookInputs, Schema, SchemaError};
 use super::writer::{non_finite_message, write_field, RowWriter};
 use csv::ByteRecord;
 use std::io::{Read, Write};
@@ -24,6 +24,9 @@ use std::sync::mpsc::sync_channel;
 
 /// Rows per chunk handed to one rayon task.
 pub const CHUNK_ROWS: usize = 2048;
+/// The column holding the year fraction used, written when an expiry may be
+/// a date.
+pub const EXPIRY_YEARS: &str = "expiry_years";
 /// How many row errors are kept in the summary (all are in the output).
 pub const MAX_REPORTED_ERRORS: usize = 20;
 
@@ -58,10 +61,15 @@ pub enum BookError {
 }
 
 /// Options of a pipeline run.
-#[derive(Debug, Clone)]
+#[derive(Debug, Clone, Default)]
 pub struct PipelineOptions {
     /// Names of the result columns the processor appends, ending with `status`.
     pub result_columns: Vec<String>,
+    /// Valuation date and fitted parameters from outside the book. When an
+    /// expiry may be a date ([`Schema::dated`]), the pipeline writes an
+    /// `expiry_years` column (the year fraction used) before the
+    /// processor's columns; otherwise the output has only the processor's.
+    pub inputs: BookInputs,
 }
 
 /// One chunk of raw records with the line of each. `len` records are live;
@@ -100,7 +108,9 @@ pub struct FailedRecord<'a> {
 ///
 /// `process` receives each row that parsed and validated, and appends every
 /// result column except the last (`status`) through the [`RowWriter`]; it
-/// returns `Ok(())` or an error message. On error (or when the row did not
+/// returns `Ok(())` or an error message. A row that is complete except for a
+/// field left empty on purpose calls [`RowWriter::set_warning`]: its fields
+/// are kept and its status is `warning: line N: message` (counted as failed). On error (or when the row did not
 /// parse, or a number it pushed is NaN or infinite) the pipeline discards
 /// any partial fields, writes empty result fields and a status
 /// `error: line N: problem`.
@@ -155,12 +165,18 @@ where
     let mut header_record = Record::default();
     reader.read_record(&mut header_record)?;
     let headers: ByteRecord = header_record.iter().collect();
-    let schema = Schema::from_headers(&headers)?;
-    let columns = &opts.result_columns[..];
+    let schema = Schema::with_inputs(&headers, &opts.inputs)?;
+    let columns: Vec<String> = schema
+        .dated()
+        .then(|| EXPIRY_YEARS.to_string())
+        .into_iter()
+        .chain(opts.result_columns.iter().cloned())
+        .collect();
+    let columns = &columns[..];
 
     let mut out = csv::WriterBuilder::new().flexible(true).from_writer(output);
     let mut header_out = headers.clone();
-    for c in &opts.result_columns {
+    for c in columns {
         header_out.push_field(c.as_bytes());
     }
     out.write_byte_record(&header_out)?;
@@ -329,11 +345,15 @@ where
         let echo = buf.len();
         let outcome = parse_row(schema, rec, row, *line).and_then(|r| {
             let mut w = RowWriter::new(&mut buf);
+            if schema.dated() {
+                w.push_f64(r.contract.expiry);
+            }
             let done = process(&r, &mut w, &mut state);
             // The safety net under every command: no NaN or inf in an ok row.
             let non_finite = w.non_finite();
+            let warning = w.take_warning();
             done.and_then(|()| match non_finite {
-                None => Ok(()),
+                None => Ok(warning),
                 Some((i, v)) => Err(non_finite_message(
                     columns.get(i).map_or("a result", String::as_str),
                     v,
@@ -345,7 +365,16 @@ where
             })
         });
         match outcome {
-            Ok(()) => buf.extend_from_slice(b",ok"),
+            Ok(None) => buf.extend_from_slice(b",ok"),
+            Ok(Some(warning)) => {
+                // Fields kept; the status says which one is empty and why.
+                failed += 1;
+                let msg = format!("line {line}: {warning}");
+                RowWriter::new(&mut buf).push_str(&format!("warning: {msg}"));
+                if errors.len() < MAX_REPORTED_ERRORS {
+                    errors.push(msg);
+                }
+            }
             Err(e) => {
                 failed += 1;
                 buf.truncate(echo);
@@ -390,6 +419,7 @@ mod tests {
         );
         let opts = PipelineOptions {
             result_columns: ["x", "y", "status"].map(String::from).to_vec(),
+            ..Default::default()
         };
         let mut out = Vec::new();
         let summary = run_book(book.as_bytes(), &mut out, &opts, |row, w| {

@@ -3,11 +3,14 @@
 //!
 //! Numbers in messages are shown as written in the field, or in short form
 //! ([`Short`]); a value that is nearly right (`32%`, `1,000`, `0,32`) is
-//! still refused, with the fix in the message.
+//! still refused, with the fix in the message. Field text in a message has
+//! its control characters escaped and is cut after [`MAX_SHOWN_CHARS`]
+//! characters (the echoed field keeps every byte).
 
 use super::records::Record;
 use super::schema::Schema;
 use crate::engines::monte_carlo;
+use crate::market::dates;
 use crate::model::{Contract, JumpParams, OptionKind, Short};
 use std::borrow::Cow;
 use std::fmt;
@@ -108,6 +111,23 @@ pub(crate) fn text(field: &[u8]) -> Result<&str, String> {
     }
 }
 
+/// Longest field text quoted in a message, in characters; a longer value
+/// is shown by its start and its length in bytes.
+pub const MAX_SHOWN_CHARS: usize = 40;
+/// Longest field, in bytes, for which a message suggests how to write it.
+const MAX_HINT_BYTES: usize = 100;
+
+/// A field's text for a message: control characters escaped, a long value
+/// cut to its first [`MAX_SHOWN_CHARS`] characters and its length.
+fn shown(raw: &[u8]) -> String {
+    let s = String::from_utf8_lossy(raw);
+    if s.chars().nth(MAX_SHOWN_CHARS).is_none() {
+        return s.escape_debug().to_string();
+    }
+    let head: String = s.chars().take(MAX_SHOWN_CHARS).collect();
+    format!("{}... ({} bytes)", head.escape_debug(), raw.len())
+}
+
 /// `kind` in any other spelling: any case, surrounding spaces.
 #[cold]
 fn general_kind(field: &[u8]) -> Result<OptionKind, String> {
@@ -115,7 +135,10 @@ fn general_kind(field: &[u8]) -> Result<OptionKind, String> {
     match raw.parse() {
         Ok(k) => Ok(k),
         Err(()) if raw.is_empty() => Err("kind is missing".into()),
-        Err(()) => Err(format!("kind '{}' is not call or put", raw.escape_debug())),
+        Err(()) => Err(format!(
+            "kind '{}' is not call or put",
+            shown(raw.as_bytes())
+        )),
     }
 }
 
@@ -135,17 +158,17 @@ pub(crate) fn general_number(raw: &[u8], name: &str) -> Result<f64, String> {
     if raw.is_empty() {
         return Err(format!("{name} is missing"));
     }
-    // Control characters are shown escaped, never written raw.
-    let shown = || String::from_utf8_lossy(raw).escape_debug().to_string();
     match fast_float2::parse::<f64, _>(raw) {
         Ok(v) if v.is_infinite() && !raw.iter().any(|c| c.eq_ignore_ascii_case(&b'i')) => Err(
-            format!("{name} = {} is too large for double precision", shown()),
+            format!("{name} = {} is too large for double precision", shown(raw)),
         ),
         Ok(v) => Ok(v),
-        Err(_) => Err(match number_hint(raw) {
-            Some(hint) => format!("{name} is not a number: '{}' ({hint})", shown()),
-            None => format!("{name} is not a number: '{}'", shown()),
-        }),
+        Err(_) => Err(
+            match number_hint(raw).filter(|_| raw.len() <= MAX_HINT_BYTES) {
+                Some(hint) => format!("{name} is not a number: '{}' ({hint})", shown(raw)),
+                None => format!("{name} is not a number: '{}'", shown(raw)),
+            },
+        ),
     }
 }
 
@@ -274,6 +297,54 @@ fn optional_number(
     }
 }
 
+/// The `expiry` field: a year fraction, or (with a valuation date from the
+/// row's `valuation_date` field or the run) an ISO 8601 date turned into
+/// an ACT/365 fixed year fraction.
+#[inline(always)]
+fn expiry(schema: &Schema, rec: &Record) -> Result<f64, String> {
+    let raw = rec.get(schema.expiry).unwrap_or(b"");
+    plain_decimal(raw).map_or_else(|| general_expiry(schema, rec, raw), Ok)
+}
+
+#[cold]
+#[inline(never)]
+fn general_expiry(schema: &Schema, rec: &Record, raw: &[u8]) -> Result<f64, String> {
+    let as_number = general_number(raw, "expiry");
+    let field = match text(raw) {
+        Ok(t) if as_number.is_err() && dates::looks_like_date(t) => t,
+        _ => return as_number,
+    };
+    let valuation = match schema.valuation_date {
+        Some(i) => {
+            let v = text(rec.get(i).unwrap_or(b"")).map_err(|e| format!("valuation_date {e}"))?;
+            dates::valuation_field(v, schema.inputs.valuation_date)?
+        }
+        None => schema.inputs.valuation_date,
+    };
+    dates::dated_expiry("expiry", field, valuation)
+}
+
+/// `vol, jump_rate, jump_mean, jump_vol`: from the book's columns, or from
+/// the row's underlying's fitted set (`--params`).
+#[inline(always)]
+fn model_params(schema: &Schema, rec: &Record) -> Result<(f64, f64, f64, f64), String> {
+    if let Some(params) = &schema.inputs.params {
+        let underlying = match schema.underlying {
+            Some(i) => text(rec.get(i).unwrap_or(b"")).map_err(|e| format!("underlying {e}"))?,
+            None => "",
+        };
+        let p = params.get(underlying)?;
+        return Ok((p.vol, p.jump_rate, p.jump_mean, p.jump_vol));
+    }
+    let col = |i: Option<usize>| i.expect("model columns are required without --params");
+    Ok((
+        number(rec, col(schema.vol), "vol")?,
+        number(rec, col(schema.jump_rate), "jump_rate")?,
+        number(rec, col(schema.jump_mean), "jump_mean")?,
+        number(rec, col(schema.jump_vol), "jump_vol")?,
+    ))
+}
+
 /// Parses and validates one data record.
 ///
 /// # Errors
@@ -314,12 +385,9 @@ pub fn parse_row<'a>(
     };
     let spot = number(rec, schema.spot, "spot").map_err(err)?;
     let strike = number(rec, schema.strike, "strike").map_err(err)?;
-    let expiry = number(rec, schema.expiry, "expiry").map_err(err)?;
+    let expiry = expiry(schema, rec).map_err(err)?;
     let rate = number(rec, schema.rate, "rate").map_err(err)?;
-    let vol = number(rec, schema.vol, "vol").map_err(err)?;
-    let jump_rate = number(rec, schema.jump_rate, "jump_rate").map_err(err)?;
-    let jump_mean = number(rec, schema.jump_mean, "jump_mean").map_err(err)?;
-    let jump_vol = number(rec, schema.jump_vol, "jump_vol").map_err(err)?;
+    let (vol, jump_rate, jump_mean, jump_vol) = model_params(schema, rec).map_err(err)?;
     let div_yield = optional_number(rec, schema.div_yield, "div_yield", 0.0).map_err(err)?;
     let quantity = optional_number(rec, schema.quantity, "quantity", 1.0).map_err(err)?;
     let multiplier = optional_number(rec, schema.multiplier, "multiplier", 1.0).map_err(err)?;

@@ -16,6 +16,8 @@ pub struct RowWriter<'a> {
     fields: usize,
     /// The first non-finite number: its field index and value.
     non_finite: Option<(usize, f64)>,
+    /// Why a result field was left empty in a row that is otherwise fine.
+    warning: Option<String>,
 }
 
 impl<'a> RowWriter<'a> {
@@ -25,6 +27,7 @@ impl<'a> RowWriter<'a> {
             buf,
             fields: 0,
             non_finite: None,
+            warning: None,
         }
     }
 
@@ -65,6 +68,19 @@ impl<'a> RowWriter<'a> {
         for _ in 0..n {
             self.buf.push(b',');
         }
+    }
+
+    /// Marks the row as complete but with a field deliberately left empty
+    /// (for example an implied volatility that does not exist): the pipeline
+    /// keeps the fields and writes the status `warning: line N: message`
+    /// instead of `ok` (the row counts as not ok). The first warning wins.
+    pub fn set_warning(&mut self, message: String) {
+        self.warning.get_or_insert(message);
+    }
+
+    /// The warning set with [`RowWriter::set_warning`], if any.
+    pub fn take_warning(&mut self) -> Option<String> {
+        self.warning.take()
     }
 
     /// The first non-finite number pushed with [`RowWriter::push_f64`], as

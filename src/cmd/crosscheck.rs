@@ -23,7 +23,8 @@ use std::time::Instant;
     "Columns written: every input column echoed, then price_series, price_fourier, price_mc, \
 mc_stderr, mc_z, fourier_gap, verdict, status.\n\
 verdict is 'agree', 'inconclusive: <why>' (an engine could not resolve the price, e.g. no \
-in-the-money Monte Carlo paths) or 'disagree: <why>'.\n\
+in-the-money Monte Carlo paths, or the Fourier engine failed: price_fourier and fourier_gap \
+are then empty) or 'disagree: <why>'.\n\
 Each row's random stream is derived from --seed and the row's id (without an id: a hash of the \
 row's fields), so results do not depend on thread count, row order or how the book is split. \
 Rows that repeat an id share a stream: they are counted and named in a warning (this check holds \
@@ -104,6 +105,8 @@ pub struct Args {
         allow_negative_numbers = true
     )]
     pub allow_disagree: u64,
+    #[command(flatten)]
+    pub inputs: super::book_inputs::BookInputArgs,
     /// No progress bar and no summary on stderr.
     #[arg(short, long)]
     pub quiet: bool,
@@ -236,6 +239,7 @@ pub fn run(args: Args) -> Result<ExitCode> {
     ];
     let opts = PipelineOptions {
         result_columns: columns.iter().map(|s| s.to_string()).collect(),
+        inputs: args.inputs.inputs()?,
     };
     let records = Mutex::new(Vec::new());
     let bar = progress(&args);
@@ -246,22 +250,27 @@ pub fn run(args: Args) -> Result<ExitCode> {
         let key = keys.key(row);
         let r = check(&row.contract, key, &cfg).map_err(|e| e.to_string())?;
         out.push_f64(r.price_series);
-        out.push_f64(r.fourier.price);
+        match r.fourier {
+            Some(f) => out.push_f64(f.price),
+            None => out.push_empty(1),
+        }
         out.push_f64(r.mc.price);
         out.push_f64(r.mc.std_error);
         match r.mc_z {
             Some(z) => out.push_f64(z),
             None => out.push_empty(1),
         }
-        out.push_f64(r.fourier_gap);
+        match r.fourier_gap {
+            Some(g) => out.push_f64(g),
+            None => out.push_empty(1),
+        }
         out.push_str(&r.verdict);
         if out.non_finite().is_some() {
             return Ok(()); // the pipeline fails the row; keep it out of the summary
         }
-        let rel = if r.price_series > 0.0 {
-            r.fourier_gap / r.price_series
-        } else {
-            0.0
+        let rel = match r.fourier_gap {
+            Some(g) if r.price_series > 0.0 => g / r.price_series,
+            _ => 0.0,
         };
         records.lock().expect("records lock").push(SummaryRecord {
             row: row.row,

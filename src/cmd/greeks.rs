@@ -105,6 +105,8 @@ pub struct Args {
         allow_negative_numbers = true
     )]
     pub seed: u64,
+    #[command(flatten)]
+    pub inputs: super::book_inputs::BookInputArgs,
     /// No summary on stderr.
     #[arg(short, long)]
     pub quiet: bool,
@@ -171,6 +173,7 @@ pub fn run(args: Args) -> Result<ExitCode> {
     columns.push("status".into());
     let opts = PipelineOptions {
         result_columns: columns,
+        inputs: args.inputs.inputs()?,
     };
     let flagged_rows = AtomicU64::new(0);
     let mc_cfg = McConfig {

@@ -10,7 +10,13 @@ macro_rules! columns_read {
     () => {
         "Columns read (by header name, any order, case-insensitive):\n  \
 required: kind, spot, strike, expiry, rate, vol, jump_rate, jump_mean, jump_vol\n  \
-optional: id, underlying, div_yield (0), quantity (1), multiplier (1, risk only)\n"
+optional: id, underlying, div_yield (0), quantity (1), multiplier (1, risk only),\n  \
+valuation_date (YYYY-MM-DD; empty: --valuation-date)\n\
+expiry is a year fraction, or a date YYYY-MM-DD when a valuation date is known (the row's\n\
+valuation_date, else --valuation-date): T = calendar days / 365 (ACT/365 fixed), written\n\
+in an expiry_years column before the results whenever a valuation date can apply.\n\
+With --params, vol, jump_rate, jump_mean, jump_vol come from the row's underlying's fit\n\
+(the book needs underlying and may omit them; having them too needs --params-override).\n"
     };
 }
 
@@ -22,6 +28,7 @@ written; no output file is then replaced)."
     };
 }
 
+pub mod book_inputs;
 pub mod calibrate;
 pub mod crosscheck;
 pub mod greeks;

@@ -7,6 +7,7 @@ use anyhow::Result;
 use saltus::book::{run_book, PipelineOptions};
 use saltus::engines::series;
 use saltus::greeks::{DESK_COLUMNS, RAW_COLUMNS};
+use saltus::market::implied_vol::implied_vol;
 use std::path::PathBuf;
 use std::process::ExitCode;
 use std::sync::atomic::{AtomicU64, Ordering};
@@ -18,6 +19,11 @@ use std::time::Instant;
     columns_read!(),
     "Columns written: every input column echoed, then price, delta, gamma, vega, theta, rho, \
 div_rho, d_jump_rate, d_jump_mean, d_jump_vol, terms, status.\n\
+--with-bound adds truncation_bound and --implied-vol adds implied_vol, in that order, before terms.\n\
+implied_vol is the Black-Scholes volatility of the row's Merton price (the model smile). Where\n\
+it does not exist in double precision (a time value below what double precision resolves,\n\
+a price at the upper bound) the field is empty, the price and Greeks are kept and the status\n\
+reads `warning: line N: implied_vol: <reason>`; such rows count as not ok (exit code 1).\n\
 Greeks are raw partial derivatives per unit (vega per 1.00 of vol, theta per year);\n\
 --desk-units writes vega_1pt, theta_1d, rho_1pct, div_rho_1pct, d_jump_mean_1pct, d_jump_vol_1pct.\n\
 The book is streamed: memory does not grow with its size.\n\
@@ -38,6 +44,12 @@ pub struct Args {
     /// Also write `truncation_bound`, the rigorous bound on the series truncation error.
     #[arg(long)]
     pub with_bound: bool,
+    /// Also write `implied_vol`, the Black-Scholes volatility of each Merton
+    /// price (the model smile), before `terms`.
+    #[arg(long)]
+    pub implied_vol: bool,
+    #[command(flatten)]
+    pub inputs: super::book_inputs::BookInputArgs,
     /// No summary on stderr.
     #[arg(short, long)]
     pub quiet: bool,
@@ -55,14 +67,21 @@ pub fn run(args: Args) -> Result<ExitCode> {
     if args.with_bound {
         result_columns.push("truncation_bound".into());
     }
+    if args.implied_vol {
+        result_columns.push("implied_vol".into());
+    }
     result_columns.push("terms".into());
     result_columns.push("status".into());
-    let opts = PipelineOptions { result_columns };
+    let opts = PipelineOptions {
+        result_columns,
+        inputs: args.inputs.inputs()?,
+    };
     let worst_rel_bound = AtomicU64::new(0);
     let input = open_input(&args.book)?;
     let mut output = Output::open(args.output.as_deref(), &args.book)?;
     let desk = args.desk_units;
     let with_bound = args.with_bound;
+    let with_implied_vol = args.implied_vol;
     let summary = run_book(input, &mut output, &opts, |row, out| {
         let r = series::price(&row.contract).map_err(|e| e.to_string())?;
         let values = if desk {
@@ -75,6 +94,24 @@ pub fn run(args: Args) -> Result<ExitCode> {
         }
         if with_bound {
             out.push_f64(r.truncation_bound);
+        }
+        if with_implied_vol {
+            let c = &row.contract;
+            match implied_vol(
+                c.kind,
+                r.greeks.price,
+                c.spot,
+                c.strike,
+                c.expiry,
+                c.rate,
+                c.div_yield,
+            ) {
+                Ok(v) => out.push_f64(v),
+                Err(e) => {
+                    out.push_empty(1);
+                    out.set_warning(format!("implied_vol: {e}"));
+                }
+            }
         }
         out.push_u64(r.terms as u64);
         // Prices below 1e-250 of spot are only resolved to the absolute floor.

@@ -95,6 +95,8 @@ pub struct Args {
     /// Title of the HTML report.
     #[arg(long, default_value = "Book risk report")]
     pub title: String,
+    #[command(flatten)]
+    pub inputs: super::book_inputs::BookInputArgs,
     /// No summary on stderr.
     #[arg(short, long)]
     pub quiet: bool,
@@ -174,6 +176,7 @@ pub fn run(args: Args) -> Result<ExitCode> {
     columns.push("status".into());
     let opts = PipelineOptions {
         result_columns: columns,
+        inputs: args.inputs.inputs()?,
     };
     let input = open_input(&args.book)?;
     let out = BufWriter::new(

@@ -27,7 +27,7 @@
 //! price units.
 
 use crate::black_scholes;
-use crate::model::Contract;
+use crate::model::{Contract, OptionKind, Short};
 use gauss_quad::GaussLegendre;
 use num_complex::Complex64;
 use std::f64::consts::PI;
@@ -67,12 +67,26 @@ pub enum FourierError {
     },
     /// The integral or its error estimate is not a finite number (inputs
     /// whose scale is outside double precision).
-    #[error("fourier result is not a finite number (price {price}, error estimate {estimate}); this row is outside the supported range")]
+    #[error("fourier result is not a finite number; this row is outside the supported range")]
     NotFinite {
         /// Price reached.
         price: f64,
         /// Error estimate reached.
         estimate: f64,
+    },
+    /// The error estimate exceeds the whole range the price can lie in, so
+    /// the result says nothing about the price (far from the money, where
+    /// the integral's rounding, which grows with `sqrt(F K)`, swamps it).
+    #[error(
+        "fourier error estimate {estimate:.1e} exceeds the whole range of this option's price \
+         (0 to {}); this row is too far from the money for the Fourier engine",
+        Short(*.range)
+    )]
+    Unresolved {
+        /// Error estimate reached, price units.
+        estimate: f64,
+        /// Upper end of the price range: discounted spot (call) or strike (put).
+        range: f64,
     },
 }
 
@@ -147,7 +161,10 @@ impl Integrand {
 ///
 /// # Errors
 /// [`FourierError::NotConverged`] when the quadrature does not reach its
-/// tolerance within [`FOURIER_MAX_PANELS`] panels.
+/// tolerance within [`FOURIER_MAX_PANELS`] panels;
+/// [`FourierError::NotFinite`] when the result overflows;
+/// [`FourierError::Unresolved`] when the error estimate exceeds the whole
+/// range the price can lie in.
 pub fn price(c: &Contract) -> Result<FourierResult, FourierError> {
     let t = c.expiry;
     if t == 0.0 {
@@ -267,6 +284,18 @@ pub fn price(c: &Contract) -> Result<FourierResult, FourierError> {
             panels: quad.panels,
             estimate: error_estimate,
             tolerance: tol_price,
+        });
+    }
+    // No-arbitrage range of the price: 0 to the discounted spot (call) or
+    // the discounted strike (put).
+    let range = match c.kind {
+        OptionKind::Call => c.spot * (-c.div_yield * t).exp(),
+        OptionKind::Put => c.strike * disc,
+    };
+    if error_estimate > range {
+        return Err(FourierError::Unresolved {
+            estimate: error_estimate,
+            range,
         });
     }
     Ok(FourierResult {

@@ -4,6 +4,7 @@
 
 pub mod fourier;
 pub mod monte_carlo;
+pub mod pide;
 pub mod series;
 
 use crate::model::Contract;

@@ -7,11 +7,17 @@
 //!   `tol = max(fourier_rel_tol * price_series, ABS_FLOOR * spot)`. When the
 //!   Fourier engine's own error estimate exceeds `tol`, the Fourier check is
 //!   *inconclusive* (short expiries without diffusion, far wings) rather
-//!   than failed.
+//!   than failed. When the Fourier engine fails (its panel budget runs out,
+//!   or the row's scale is outside double precision for it), the Fourier
+//!   check is inconclusive with the engine's reason, and the series and
+//!   Monte Carlo results are still reported.
 //! - Monte Carlo agrees when `|z| <= z_max`, `z = (price_mc - price_series) / mc_stderr`.
 //!   When the simulated discounted terminal price misses its known mean by
 //!   more than 5 standard errors (martingale test), the sample is not
-//!   representative (extremely heavy tails) and the check is inconclusive.
+//!   representative (extremely heavy tails) and the check is inconclusive;
+//!   so it is when that z-score is not a finite number (every simulated
+//!   discounted terminal price alike but off its mean, or the simulated
+//!   prices overflow).
 //!   With fewer than [`MIN_MC_HITS`] in-the-money paths, or an effective
 //!   sample size of the weights below [`MIN_MC_ESS`], the standard error
 //!   itself is not trustworthy and the check is inconclusive. A degenerate
@@ -70,14 +76,14 @@ pub enum Outcome {
 pub struct RowCheck {
     /// Series price.
     pub price_series: f64,
-    /// Fourier result.
-    pub fourier: FourierResult,
+    /// Fourier result (`None`: the Fourier engine failed; the verdict says why).
+    pub fourier: Option<FourierResult>,
     /// Monte Carlo result.
     pub mc: McEstimate,
     /// `(price_mc - price_series) / mc_stderr`, when defined.
     pub mc_z: Option<f64>,
-    /// `price_fourier - price_series`.
-    pub fourier_gap: f64,
+    /// `price_fourier - price_series` (`None` without a Fourier result).
+    pub fourier_gap: Option<f64>,
     /// Worst of the two outcomes.
     pub outcome: Outcome,
     /// `agree`, `inconclusive: ...` or `disagree: ...`.
@@ -91,42 +97,44 @@ pub enum CheckError {
     /// The series engine failed (overflow for inputs outside the supported range).
     #[error(transparent)]
     Series(#[from] series::SeriesError),
-    /// The Fourier quadrature ran out of its panel budget.
-    #[error(transparent)]
-    Fourier(#[from] fourier::FourierError),
 }
 
 /// Prices a contract with the three engines and compares them.
 ///
 /// # Errors
-/// [`CheckError`] when the series engine or the Fourier engine fails.
+/// [`CheckError`] when the series engine fails (a Fourier failure makes
+/// the verdict inconclusive instead).
 pub fn check(c: &Contract, key: u64, cfg: &CheckConfig) -> Result<RowCheck, CheckError> {
     let s = series::price(c)?.greeks.price;
-    let f = fourier::price(c)?;
+    let fourier = fourier::price(c);
     let m = monte_carlo::price(c, key, &cfg.mc);
     let floor = ABS_FLOOR * c.spot;
     let tol = (cfg.fourier_rel_tol * s).max(floor);
-    let gap = f.price - s;
     let mut fails = Vec::new();
     let mut unsure = Vec::new();
-    if gap.abs() > tol {
-        if f.error_estimate > tol {
-            unsure.push(format!(
-                "fourier error estimate {:.1e} above tolerance",
-                f.error_estimate
-            ));
-        } else {
-            fails.push(format!("fourier gap {gap:.3e} beyond {tol:.1e}"));
+    let gap = match &fourier {
+        Err(e) => {
+            unsure.push(format!("fourier engine failed: {e}"));
+            None
         }
-    } else if f.error_estimate > tol {
-        unsure.push(format!(
-            "fourier error estimate {:.1e} above tolerance",
-            f.error_estimate
-        ));
-    }
+        Ok(f) => {
+            let gap = f.price - s;
+            if f.error_estimate > tol {
+                unsure.push(format!(
+                    "fourier error estimate {:.1e} above tolerance {tol:.1e}",
+                    f.error_estimate
+                ));
+            } else if gap.abs() > tol {
+                fails.push(format!("fourier gap {gap:.3e} beyond {tol:.1e}"));
+            }
+            Some(gap)
+        }
+    };
     let diff = m.price - s;
+    // A z-score that overflows (a standard error far below the difference)
+    // is not reported as a number.
     let mc_z = if m.std_error > 0.0 {
-        Some(diff / m.std_error)
+        Some(diff / m.std_error).filter(|z| z.is_finite())
     } else {
         None
     };
@@ -134,7 +142,18 @@ pub fn check(c: &Contract, key: u64, cfg: &CheckConfig) -> Result<RowCheck, Chec
     // variance reduction of 1e18: only a control that replicates every
     // simulated payoff does that.
     let degenerate_se = m.std_error <= 1e-9 * s.max(floor);
-    if c.expiry > 0.0 && m.martingale_z.abs() > 5.0 {
+    if c.expiry > 0.0 && !m.martingale_z.is_finite() {
+        // The z-score itself is undefined: say why instead of printing it.
+        unsure.push(
+            if m.martingale_z.is_nan() {
+                "mc martingale test undefined (the simulated terminal prices overflow)"
+            } else {
+                "mc sample misses the paths that carry the forward (martingale test: \
+                 every simulated terminal price alike, off its known mean)"
+            }
+            .to_string(),
+        );
+    } else if c.expiry > 0.0 && m.martingale_z.abs() > 5.0 {
         unsure.push(format!(
             "mc sample misses the paths that carry the forward (martingale test z = {:.1})",
             m.martingale_z
@@ -156,6 +175,11 @@ pub fn check(c: &Contract, key: u64, cfg: &CheckConfig) -> Result<RowCheck, Chec
         if z.abs() > cfg.z_max && diff.abs() > floor {
             fails.push(format!("mc z = {z:.2} beyond {}", cfg.z_max));
         }
+    } else if m.std_error > 0.0 && diff.abs() > floor {
+        fails.push(format!(
+            "mc differs by {diff:.3e} with a standard error of {:.1e} (z beyond double range)",
+            m.std_error
+        ));
     }
     let (outcome, verdict) = if !fails.is_empty() {
         (Outcome::Disagree, format!("disagree: {}", fails.join("; ")))
@@ -169,7 +193,7 @@ pub fn check(c: &Contract, key: u64, cfg: &CheckConfig) -> Result<RowCheck, Chec
     };
     Ok(RowCheck {
         price_series: s,
-        fourier: f,
+        fourier: fourier.ok(),
         mc: m,
         mc_z,
         fourier_gap: gap,

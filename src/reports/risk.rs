@@ -38,7 +38,7 @@
 use crate::book::pipeline::CHUNK_ROWS;
 use crate::book::{ChunkState, FailedRecord};
 use crate::engines::series;
-use crate::greeks::{Greeks, DAYS_PER_YEAR};
+use crate::greeks::{Greeks, DAYS_PER_YEAR, DESK_COLUMNS};
 use crate::model::Contract;
 use std::collections::BTreeMap;
 use std::fmt;
@@ -148,20 +148,24 @@ pub struct Exposure {
 
 /// Names of the [`Exposure`] sums, in [`Exposure::values`] order (the
 /// columns of `totals.csv` after `positions`).
-pub const EXPOSURE_COLUMNS: [&str; 12] = [
-    "value",
-    "delta",
-    "delta_cash",
-    "gamma",
-    "gamma_cash_1pct",
-    "vega_1pt",
-    "theta_1d",
-    "rho_1pct",
-    "div_rho_1pct",
-    "d_jump_rate",
-    "d_jump_mean_1pct",
-    "d_jump_vol_1pct",
-];
+/// The value and the spot Greeks with their cash forms, then the desk-unit
+/// columns of `price --desk-units` from `vega_1pt` on.
+pub const EXPOSURE_COLUMNS: [&str; 12] = {
+    const HEAD: [&str; 5] = ["value", "delta", "delta_cash", "gamma", "gamma_cash_1pct"];
+    // DESK_COLUMNS after price, delta and gamma.
+    const SKIP: usize = 3;
+    let mut all = [""; 12];
+    let mut i = 0;
+    while i < all.len() {
+        all[i] = if i < HEAD.len() {
+            HEAD[i]
+        } else {
+            DESK_COLUMNS[i - HEAD.len() + SKIP]
+        };
+        i += 1;
+    }
+    all
+};
 
 impl Exposure {
     /// Exposure of one position (not checked; see [`exposure_of`]).

@@ -606,73 +606,92 @@ fn count(n: u64, thing: &str) -> String {
     format!("{n} {thing}{}", if n == 1 { "" } else { "s" })
 }
 
+/// A warning paragraph, a table of the first items listed (`cells` gives a
+/// row's cells, already escaped) and, when the list was cut, a line saying
+/// how many of the `total` items are not shown (`more` words it).
+fn listed_table<T>(
+    intro: String,
+    headers: &[&str],
+    items: &[T],
+    total: u64,
+    cells: impl Fn(&T) -> Vec<String>,
+    more: impl Fn(u64) -> String,
+) -> String {
+    let mut t = format!("{intro}<table><thead><tr>");
+    for h in headers {
+        let _ = write!(t, "<th>{h}</th>");
+    }
+    t.push_str("</tr></thead><tbody>");
+    for item in items {
+        t.push_str("<tr>");
+        for c in cells(item) {
+            let _ = write!(t, "<td>{c}</td>");
+        }
+        t.push_str("</tr>");
+    }
+    t.push_str("</tbody></table>");
+    let left = total.saturating_sub(items.len() as u64);
+    if left > 0 {
+        let _ = write!(t, "<p class=\"warn\">&hellip; and {}</p>", more(left));
+    }
+    t
+}
+
 fn failed_rows_html(r: &RiskReport) -> String {
     if r.failed_rows == 0 {
         return "<p>Every row of the book was priced; all are included.</p>".to_string();
     }
-    let mut t = format!(
-        "<p class=\"warn\">{} could not be priced and {} <strong>excluded from every total and scenario</strong>:</p>\
-         <table><thead><tr><th>line</th><th>id</th><th>status</th></tr></thead><tbody>",
+    let intro = format!(
+        "<p class=\"warn\">{} could not be priced and {} <strong>excluded from every total and scenario</strong>:</p>",
         count(r.failed_rows, "row"),
         if r.failed_rows == 1 { "is" } else { "are" }
     );
-    for f in &r.first_failed_rows {
-        let _ = write!(
-            t,
-            "<tr><td>{}</td><td>{}</td><td>{}</td></tr>",
-            f.line,
-            esc(&f.id),
-            esc(&f.status)
-        );
-    }
-    t.push_str("</tbody></table>");
-    let more = r
-        .failed_rows
-        .saturating_sub(r.first_failed_rows.len() as u64);
-    if more > 0 {
-        let _ = write!(
-            t,
-            "<p class=\"warn\">&hellip; and {more} more failed row{} (every row's status is in positions.csv).</p>",
-            if more == 1 { "" } else { "s" }
-        );
-    }
-    t
+    listed_table(
+        intro,
+        &["line", "id", "status"],
+        &r.first_failed_rows,
+        r.failed_rows,
+        |f| vec![f.line.to_string(), esc(&f.id), esc(&f.status)],
+        |more| {
+            format!(
+                "{more} more failed row{} (every row's status is in positions.csv).",
+                if more == 1 { "" } else { "s" }
+            )
+        },
+    )
 }
 
 fn scenario_failures_html(r: &RiskReport) -> String {
     if r.scenario_failures == 0 {
         return "<p>Every priced row was revalued in every scenario.</p>".to_string();
     }
-    let mut t = format!(
+    let intro = format!(
         "<p class=\"warn\">{} failed: each excludes one row from one scenario cell, whose P&amp;L then \
          covers the other rows only (marked <code>partial</code> in the CSV files, &ldquo;excl.&rdquo; \
-         or <code>*</code> here). All are listed in {SCENARIO_FAILURES_FILE}.</p>\
-         <table><thead><tr><th>line</th><th>id</th><th>underlying</th><th>scenario</th><th>reason</th></tr></thead><tbody>",
+         or <code>*</code> here). All are listed in {SCENARIO_FAILURES_FILE}.</p>",
         count(r.scenario_failures, "scenario revaluation")
     );
-    for f in &r.first_scenario_failures {
-        let _ = write!(
-            t,
-            "<tr><td>{}</td><td>{}</td><td>{}</td><td>{}</td><td>{}</td></tr>",
-            f.line,
-            esc(&f.id),
-            esc(&f.underlying),
-            esc(&f.scenario.to_string()),
-            esc(&f.reason)
-        );
-    }
-    t.push_str("</tbody></table>");
-    let more = r
-        .scenario_failures
-        .saturating_sub(r.first_scenario_failures.len() as u64);
-    if more > 0 {
-        let _ = write!(
-            t,
-            "<p class=\"warn\">&hellip; and {more} more failed revaluation{} (see {SCENARIO_FAILURES_FILE}).</p>",
-            if more == 1 { "" } else { "s" }
-        );
-    }
-    t
+    listed_table(
+        intro,
+        &["line", "id", "underlying", "scenario", "reason"],
+        &r.first_scenario_failures,
+        r.scenario_failures,
+        |f| {
+            vec![
+                f.line.to_string(),
+                esc(&f.id),
+                esc(&f.underlying),
+                esc(&f.scenario.to_string()),
+                esc(&f.reason),
+            ]
+        },
+        |more| {
+            format!(
+                "{more} more failed revaluation{} (see {SCENARIO_FAILURES_FILE}).",
+                if more == 1 { "" } else { "s" }
+            )
+        },
+    )
 }
 
 fn problems_html(r: &RiskReport) -> String {

@@ -3,6 +3,34 @@
 use saltus::model::{Contract, JumpParams, OptionKind};
 use std::path::PathBuf;
 
+/// The required columns in schema order: the header of the command tests' books.
+pub const HEADER: &str = "kind,spot,strike,expiry,rate,vol,jump_rate,jump_mean,jump_vol";
+
+/// The real binary.
+pub fn saltus() -> assert_cmd::Command {
+    assert_cmd::Command::cargo_bin("saltus").unwrap()
+}
+
+/// Reads CSV output (flexible widths) as its header and rows of strings.
+pub fn read_csv(text: impl AsRef<[u8]>) -> (Vec<String>, Vec<Vec<String>>) {
+    let mut r = csv::ReaderBuilder::new()
+        .flexible(true)
+        .from_reader(text.as_ref());
+    let h = r.headers().unwrap().iter().map(String::from).collect();
+    let rows = r
+        .records()
+        .map(|x| x.unwrap().iter().map(String::from).collect())
+        .collect();
+    (h, rows)
+}
+
+/// Position of column `name` in a header (panics when absent).
+pub fn col(h: &[String], name: &str) -> usize {
+    h.iter()
+        .position(|x| x == name)
+        .unwrap_or_else(|| panic!("no column {name}"))
+}
+
 /// Path of a file under `tests/data`.
 pub fn data(name: &str) -> PathBuf {
     PathBuf::from(env!("CARGO_MANIFEST_DIR"))

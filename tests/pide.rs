@@ -1,0 +1,160 @@
+//! PIDE engine: European values against the series (the closed form is the
+//! outside reference here), American values without jumps against an
+//! independent extrapolated binomial tree (`scripts/make_american_reference.py`,
+//! Broadie & Detemple 1996 BBSR), and the identities and bounds of early
+//! exercise.
+
+use crate::common::{merton, num, read_fixture};
+use saltus::engines::pide::{self, Exercise, PideConfig};
+use saltus::engines::series;
+use saltus::model::OptionKind::{self, Call, Put};
+
+fn pide(c: &saltus::model::Contract, ex: Exercise) -> pide::PideResult {
+    pide::price(c, ex, &PideConfig::default()).unwrap()
+}
+
+#[test]
+fn european_pide_matches_the_series_within_its_own_error_estimate() {
+    // The estimate must cover the true error, and the tolerance (1e-6 of
+    // spot) must be met. lambda T from 0 to 6.
+    let mut worst_ratio = 0.0f64;
+    for kind in [Call, Put] {
+        for &(k, t) in &[(100.0, 0.1), (85.0, 0.5), (115.0, 1.5)] {
+            for &(lam, mu, dl) in &[(0.0, 0.0, 0.0), (0.3, -0.25, 0.2), (2.0, 0.05, 0.1)] {
+                let c = merton(kind, 100.0, k, t, 0.03, 0.01, 0.25, lam, mu, dl);
+                let s = series::price(&c).unwrap().greeks;
+                let p = pide(&c, Exercise::European);
+                let err = (p.price - s.price).abs();
+                worst_ratio = worst_ratio.max(err / p.error_estimate);
+                assert!(
+                    err <= p.error_estimate,
+                    "{kind:?} K={k} T={t} lam={lam}: pide {} series {} (error {err:.2e} > estimate {:.2e})",
+                    p.price,
+                    s.price,
+                    p.error_estimate
+                );
+                assert!(
+                    p.error_estimate <= 1e-4,
+                    "estimate {:.2e}",
+                    p.error_estimate
+                );
+                // Grid Greeks: delta within its own estimate plus 1e-6, gamma and theta
+                // within 1e-3 relative (the tolerance governs the price only).
+                assert!(
+                    (p.delta - s.delta).abs() <= p.greek_errors[0] + 1e-6,
+                    "delta {} vs {}",
+                    p.delta,
+                    s.delta
+                );
+                assert!(
+                    (p.gamma - s.gamma).abs() <= 1e-3 * s.gamma.abs() + 1e-7,
+                    "gamma {} vs {}",
+                    p.gamma,
+                    s.gamma
+                );
+                assert!(
+                    (p.theta - s.theta).abs() <= 1e-3 * s.theta.abs() + 1e-4,
+                    "theta {} vs {}",
+                    p.theta,
+                    s.theta
+                );
+            }
+        }
+    }
+    eprintln!("pide european: worst true error / estimate = {worst_ratio:.2}");
+}
+
+#[test]
+fn american_without_jumps_matches_an_extrapolated_binomial_tree() {
+    for row in read_fixture("american_reference.csv") {
+        let kind: OptionKind = row["kind"].parse().unwrap();
+        let c = merton(
+            kind,
+            num(&row, "spot"),
+            num(&row, "strike"),
+            num(&row, "expiry"),
+            num(&row, "rate"),
+            num(&row, "div_yield"),
+            num(&row, "vol"),
+            0.0,
+            0.0,
+            0.0,
+        );
+        let p = pide(&c, Exercise::American);
+        let reference = num(&row, "american");
+        let allowed = p.error_estimate + num(&row, "reference_error");
+        assert!(
+            (p.price - reference).abs() <= allowed,
+            "{row:?}: pide {} (estimate {:.1e}) vs tree {reference}",
+            p.price,
+            p.error_estimate
+        );
+    }
+}
+
+#[test]
+fn early_exercise_identities_and_bounds() {
+    // Merton (1973): no early exercise of a call without dividends at r >= 0.
+    let c = merton(Call, 100.0, 95.0, 1.0, 0.04, 0.0, 0.2, 0.5, -0.2, 0.15);
+    let (am, eu) = (pide(&c, Exercise::American), pide(&c, Exercise::European));
+    assert!(
+        (am.price - eu.price).abs() <= 1e-12 * eu.price,
+        "{} vs {}",
+        am.price,
+        eu.price
+    );
+    assert!(pide::early_exercise_is_worthless(&c));
+    // American >= European >= 0 and American >= intrinsic; the premium is
+    // positive for puts with r > 0 and calls with q > 0.
+    let mut last_by_spot = f64::INFINITY;
+    for &s in &[80.0, 90.0, 100.0, 110.0, 120.0] {
+        let c = merton(Put, s, 100.0, 0.75, 0.05, 0.0, 0.2, 0.4, -0.15, 0.1);
+        let (am, eu) = (pide(&c, Exercise::American), pide(&c, Exercise::European));
+        assert!(
+            am.price >= eu.price - eu.error_estimate,
+            "S={s}: {} < {}",
+            am.price,
+            eu.price
+        );
+        assert!(am.price > eu.price, "premium at S={s}");
+        assert!(
+            am.price >= (100.0 - s).max(0.0) - am.error_estimate,
+            "intrinsic at S={s}"
+        );
+        // Decreasing in spot.
+        assert!(am.price < last_by_spot, "not decreasing at S={s}");
+        last_by_spot = am.price;
+        assert!(
+            am.delta < 0.0 && am.gamma > 0.0,
+            "S={s}: delta {} gamma {}",
+            am.delta,
+            am.gamma
+        );
+    }
+    let mut last_by_t = 0.0;
+    for &t in &[0.1, 0.5, 1.0, 2.0] {
+        let c = merton(Put, 100.0, 100.0, t, 0.05, 0.0, 0.2, 0.4, -0.15, 0.1);
+        let am = pide(&c, Exercise::American);
+        assert!(am.price > last_by_t, "not increasing in T at {t}");
+        last_by_t = am.price;
+    }
+    let c = merton(Call, 100.0, 100.0, 1.0, 0.02, 0.06, 0.25, 0.3, 0.05, 0.1);
+    assert!(pide(&c, Exercise::American).price > pide(&c, Exercise::European).price);
+}
+
+#[test]
+fn expiry_zero_is_the_payoff_exactly() {
+    let c = merton(Put, 90.0, 100.0, 0.0, 0.05, 0.0, 0.2, 0.4, -0.15, 0.1);
+    let p = pide(&c, Exercise::American);
+    assert_eq!((p.price, p.delta, p.error_estimate), (10.0, -1.0, 0.0));
+}
+
+#[test]
+fn same_digits_on_every_run_and_thread() {
+    let c = merton(Put, 100.0, 105.0, 0.5, 0.03, 0.0, 0.3, 1.0, -0.1, 0.2);
+    let a = pide(&c, Exercise::American);
+    let b = std::thread::spawn(move || pide(&c, Exercise::American))
+        .join()
+        .unwrap();
+    assert_eq!(a.price.to_bits(), b.price.to_bits());
+}
