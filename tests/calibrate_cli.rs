@@ -211,7 +211,9 @@ fn bad_fields_name_line_and_column() {
         "{res}"
     );
     assert!(res.contains("error: line 13: implied_vol is not a number: '21.5%' (write 0.215)"));
-    assert!(res.contains("error: line 14: expiry '2027-03-19' is a calendar date"));
+    assert!(
+        res.contains("error: line 14: expiry 2027-03-19 is a date but no valuation date is known")
+    );
 }
 
 #[test]
@@ -360,4 +362,91 @@ fn output_does_not_depend_on_the_thread_count() {
             .stdout
     };
     assert_eq!(run("1"), run("2"));
+}
+
+/// The demo sheet with each expiry rounded to whole days, written once as a
+/// year fraction (days / 365) and once as a date after 2026-12-01.
+fn dated_sheets(dir: &Path) -> (std::path::PathBuf, std::path::PathBuf) {
+    let mut r = csv::Reader::from_path(demo()).unwrap();
+    let h = r.headers().unwrap().clone();
+    let t = col(&h, "expiry");
+    let (years, dated) = (dir.join("years.csv"), dir.join("dated.csv"));
+    let mut wy = csv::Writer::from_path(&years).unwrap();
+    let mut wd = csv::Writer::from_path(&dated).unwrap();
+    wy.write_record(&h).unwrap();
+    wd.write_record(&h).unwrap();
+    let start = jiff::civil::date(2026, 12, 1);
+    for rec in r.records() {
+        let rec = rec.unwrap();
+        let (mut y, mut d): (Vec<String>, Vec<String>) = (Vec::new(), Vec::new());
+        for (i, f) in rec.iter().enumerate() {
+            if i == t && f.parse::<f64>().is_ok() {
+                let days = (f.parse::<f64>().unwrap() * 365.0).round() as i64;
+                y.push(format!("{}", days as f64 / 365.0));
+                d.push(
+                    start
+                        .checked_add(jiff::Span::new().days(days))
+                        .unwrap()
+                        .to_string(),
+                );
+            } else {
+                y.push(f.to_string());
+                d.push(f.to_string());
+            }
+        }
+        wy.write_record(&y).unwrap();
+        wd.write_record(&d).unwrap();
+    }
+    wy.flush().unwrap();
+    wd.flush().unwrap();
+    (years, dated)
+}
+
+#[test]
+fn dated_expiries_fit_exactly_as_their_year_fractions() {
+    // ACT/365 fixed: a date D days after the valuation date is D / 365 years
+    // (the convention stated in the README), so both sheets give the same fit.
+    let dir = tempfile::tempdir().unwrap();
+    let (years, dated) = dated_sheets(dir.path());
+    let run = |sheet: &Path, extra: &[&str]| {
+        let out = saltus()
+            .arg("calibrate")
+            .arg(sheet)
+            .args(extra)
+            .output()
+            .unwrap();
+        assert!(
+            out.status.code().unwrap() <= 1,
+            "{}",
+            String::from_utf8_lossy(&out.stderr)
+        );
+        out.stdout
+    };
+    let a = run(&years, &[]);
+    let b = run(&dated, &["--valuation-date", "2026-12-01"]);
+    assert!(!a.is_empty());
+    assert_eq!(String::from_utf8_lossy(&a), String::from_utf8_lossy(&b));
+    // Without a valuation date every dated quote is a row error naming the column.
+    let res = dir.path().join("res.csv");
+    let out = saltus()
+        .arg("calibrate")
+        .arg(&dated)
+        .arg("--residuals")
+        .arg(&res)
+        .output()
+        .unwrap();
+    assert_eq!(out.status.code(), Some(1));
+    let (h, rows) = records(&res);
+    let s = col(&h, "status");
+    let dated_rows = rows
+        .iter()
+        .filter(|r| r[s].contains("is a date but no valuation date is known"));
+    assert!(
+        dated_rows.count() >= 190,
+        "statuses: {:?}",
+        rows.iter()
+            .map(|r| r[s].to_string())
+            .take(3)
+            .collect::<Vec<_>>()
+    );
 }

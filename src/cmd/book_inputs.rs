@@ -27,7 +27,8 @@ pub struct BookInputArgs {
     pub params_override: bool,
 }
 
-fn parse_valuation_date(text: &str) -> Result<Date, String> {
+/// Parses `--valuation-date` (shared with `calibrate`).
+pub fn parse_valuation_date(text: &str) -> Result<Date, String> {
     dates::parse_date(text).map_err(|e| format!("'{}' {e}", text.escape_debug()))
 }
 

@@ -11,7 +11,7 @@ use super::open_input;
 use super::output::{Output, OutputDir};
 use anyhow::{anyhow, bail, Context, Result};
 use saltus::market::calibrate::{self, check_param, CalibrationSpec, Objective, PARAM_NAMES};
-use saltus::market::quotes::read_quotes;
+use saltus::market::quotes::read_quotes_dated;
 use saltus::reports::calibration_report as report;
 use std::io::Write;
 use std::path::PathBuf;
@@ -34,8 +34,8 @@ pub enum ObjectiveArg {
 #[derive(clap::Args)]
 #[command(after_help = concat!(
     "Columns read (by header name, any order, case-insensitive):\n  \
-required: underlying, kind, strike, expiry (years), spot, rate\n  \
-optional: id, div_yield (0), valuation_date (echoed), weight (1)\n  \
+required: underlying, kind, strike, expiry (years, or YYYY-MM-DD with a valuation date), spot, rate\n  \
+optional: id, div_yield (0), valuation_date (for date expiries), weight (1)\n  \
 quote, exactly one per row: price (mid), or bid and ask, or implied_vol (decimal: 0.215)\n\
 Columns written to PARAMS (-o), one row per underlying (with --per-expiry: per underlying and \
 expiry, with `expiry` after `underlying`):\n  \
@@ -71,6 +71,10 @@ pub struct Args {
     /// HTML report directory (with params.csv and residuals.csv).
     #[arg(long, value_name = "DIR")]
     pub report: Option<PathBuf>,
+    /// Valuation date (YYYY-MM-DD) of quotes without a valuation_date field: an
+    /// expiry may then be a date, turned into calendar days / 365 (ACT/365 fixed)
+    #[arg(long, value_name = "YYYY-MM-DD", value_parser = super::book_inputs::parse_valuation_date)]
+    pub valuation_date: Option<saltus::market::dates::Date>,
     /// One parameter set per underlying and expiry (shows a term-structure mismatch).
     #[arg(long)]
     pub per_expiry: bool,
@@ -188,7 +192,7 @@ pub fn run(args: Args) -> Result<ExitCode> {
         None => None,
     };
     let input = open_input(&args.quotes)?;
-    let sheet = read_quotes(input)
+    let sheet = read_quotes_dated(input, args.valuation_date)
         .with_context(|| format!("cannot read quotes from {}", args.quotes.display()))?;
     let fits = calibrate::calibrate(&sheet, &spec);
     let outcomes = report::outcomes(&sheet, &fits, &spec);

@@ -22,6 +22,7 @@
 use crate::black_scholes;
 use crate::book::reader::{general_number, plain_decimal, text};
 use crate::book::records::{Record, RecordReader};
+use crate::market::dates::{self, Date};
 use crate::market::implied_vol::implied_vol;
 use crate::model::{Contract, JumpParams, OptionKind, Short};
 use std::io::Read;
@@ -238,12 +239,12 @@ fn optional(rec: &Record, idx: Option<usize>, name: &str) -> Result<Option<f64>,
     number(raw, name).map(Some)
 }
 
-fn looks_like_date(raw: &[u8]) -> bool {
-    let t = raw.trim_ascii();
-    t.len() == 10 && t[4] == b'-' && t[7] == b'-'
-}
-
-fn parse_quote(c: &Columns, rec: &Record, line: u64) -> Result<Quote, String> {
+fn parse_quote(
+    c: &Columns,
+    rec: &Record,
+    line: u64,
+    valuation: Option<Date>,
+) -> Result<Quote, String> {
     if let Some(open) = rec.open_quote() {
         return Err(format!(
             "malformed record: the quote opened on line {open} is never closed \
@@ -273,14 +274,22 @@ fn parse_quote(c: &Columns, rec: &Record, line: u64) -> Result<Quote, String> {
         }
     })?;
     let strike = number(&rec[x], "strike")?;
-    let expiry = if looks_like_date(&rec[t]) {
-        return Err(format!(
-            "expiry '{}' is a calendar date: this build reads year fractions only (write the \
-             years to expiry, ACT/365)",
-            String::from_utf8_lossy(rec[t].trim_ascii()).escape_debug()
-        ));
-    } else {
-        number(&rec[t], "expiry")?
+    // A dated expiry needs the row's valuation date (its `valuation_date`
+    // field, else `--valuation-date`); ACT/365 fixed, as for books.
+    let valuation = match c.valuation_date {
+        Some(i) => {
+            let field = text(&rec[i]).map_err(|e| format!("valuation_date {e}"))?;
+            dates::valuation_field(field, valuation)?
+        }
+        None => valuation,
+    };
+    let expiry_text = text(&rec[t]).map_err(|e| format!("expiry {e}"))?;
+    let expiry = match number(&rec[t], "expiry") {
+        Ok(v) => v,
+        Err(_) if dates::looks_like_date(expiry_text) => {
+            dates::dated_expiry("expiry", expiry_text, valuation)?
+        }
+        Err(e) => return Err(e),
     };
     let spot = number(&rec[s], "spot")?;
     let rate = number(&rec[r], "rate")?;
@@ -306,9 +315,6 @@ fn parse_quote(c: &Columns, rec: &Record, line: u64) -> Result<Quote, String> {
         Some(i) => text(&rec[i]).map_err(|e| format!("id {e}"))?.to_string(),
         None => String::new(),
     };
-    // `valuation_date` is accepted and echoed; it matters only for calendar
-    // expiries, which this build does not read yet.
-    let _ = c.valuation_date;
     let price = optional(rec, c.price, "price")?;
     let bid = optional(rec, c.bid, "bid")?;
     let ask = optional(rec, c.ask, "ask")?;
@@ -484,6 +490,18 @@ pub fn price_bounds(
 /// # Errors
 /// [`QuotesError`] for problems with the file as a whole.
 pub fn read_quotes<R: Read>(input: R) -> Result<QuoteSheet, QuotesError> {
+    read_quotes_dated(input, None)
+}
+
+/// [`read_quotes`] with a valuation date for rows whose expiry is a date and
+/// that have no `valuation_date` field of their own (`--valuation-date`).
+///
+/// # Errors
+/// [`QuotesError`] for problems with the file as a whole.
+pub fn read_quotes_dated<R: Read>(
+    input: R,
+    valuation: Option<Date>,
+) -> Result<QuoteSheet, QuotesError> {
     let mut reader = RecordReader::new(input);
     let mut rec = Record::default();
     if reader.read_record(&mut rec)?.is_none() {
@@ -493,7 +511,8 @@ pub fn read_quotes<R: Read>(input: R) -> Result<QuoteSheet, QuotesError> {
     let header: Vec<Vec<u8>> = rec.iter().map(<[u8]>::to_vec).collect();
     let mut rows = Vec::new();
     while let Some(line) = reader.read_record(&mut rec)? {
-        let quote = parse_quote(&cols, &rec, line).map_err(|m| format!("line {line}: {m}"));
+        let quote =
+            parse_quote(&cols, &rec, line, valuation).map_err(|m| format!("line {line}: {m}"));
         rows.push(QuoteRow {
             line,
             fields: rec.iter().map(<[u8]>::to_vec).collect(),
