@@ -277,15 +277,7 @@ fn risk_reads_dated_expiries() {
     };
     ok(&["risk", "--valuation-date", "2027-01-01"], &a, &ra);
     ok(&["risk"], &b, &rb);
-    let rows = |p: &Path| -> Vec<Vec<String>> {
-        csv::ReaderBuilder::new()
-            .has_headers(false)
-            .from_path(p.join("positions.csv"))
-            .unwrap()
-            .records()
-            .map(|r| r.unwrap().iter().map(String::from).collect())
-            .collect()
-    };
+    let rows = |p: &Path| crate::common::csv_file_rows(&p.join("positions.csv"));
     let (pa, pb) = (rows(&ra), rows(&rb));
     assert_eq!(pa[0][11], "expiry_years");
     for (x, y) in pa[1..].iter().zip(&pb[1..]) {

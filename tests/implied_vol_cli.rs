@@ -3,14 +3,13 @@
 //! output without the flag unchanged, and the warning contract for a Merton
 //! price with no implied volatility.
 
-use assert_cmd::Command;
+use crate::common::{read_csv, saltus};
 use saltus::model::OptionKind;
 
 const HEADER: &str = "kind,spot,strike,expiry,rate,vol,jump_rate,jump_mean,jump_vol,id";
 
 fn price(book: &str, extra: &[&str]) -> (String, i32) {
-    let out = Command::cargo_bin("saltus")
-        .unwrap()
+    let out = saltus()
         .args(["price", "-", "-q"])
         .args(extra)
         .write_stdin(book.to_string())
@@ -22,18 +21,6 @@ fn price(book: &str, extra: &[&str]) -> (String, i32) {
     )
 }
 
-fn rows(text: &str) -> (Vec<String>, Vec<Vec<String>>) {
-    let mut r = csv::ReaderBuilder::new()
-        .flexible(true)
-        .from_reader(text.as_bytes());
-    let h = r.headers().unwrap().iter().map(String::from).collect();
-    let rows = r
-        .records()
-        .map(|x| x.unwrap().iter().map(String::from).collect())
-        .collect();
-    (h, rows)
-}
-
 #[test]
 fn implied_vol_column_sits_before_terms_and_inverts_the_merton_price() {
     let book = format!(
@@ -42,7 +29,7 @@ fn implied_vol_column_sits_before_terms_and_inverts_the_merton_price() {
     );
     let (text, code) = price(&book, &["--implied-vol", "--with-bound"]);
     assert_eq!(code, 0, "{text}");
-    let (h, r) = rows(&text);
+    let (h, r) = read_csv(&text);
     let n = h.len();
     assert_eq!(
         &h[n - 4..],
@@ -71,8 +58,8 @@ fn without_the_flag_the_output_is_unchanged() {
     let book = format!("{HEADER}\ncall,100,90,0.5,0.03,0.2,0.5,-0.1,0.15,a\n");
     let (plain, _) = price(&book, &[]);
     let (with, _) = price(&book, &["--implied-vol"]);
-    let (hp, rp) = rows(&plain);
-    let (hw, rw) = rows(&with);
+    let (hp, rp) = read_csv(&plain);
+    let (hw, rw) = read_csv(&with);
     assert!(!hp.iter().any(|c| c == "implied_vol"));
     let i = hw.iter().position(|c| c == "implied_vol").unwrap();
     let mut hw2 = hw.clone();
@@ -92,7 +79,7 @@ fn a_price_with_no_implied_vol_keeps_its_fields_and_says_why() {
     );
     let (text, code) = price(&book, &["--implied-vol"]);
     assert_eq!(code, 1, "{text}");
-    let (h, r) = rows(&text);
+    let (h, r) = read_csv(&text);
     let n = h.len();
     let status = &r[0][n - 1];
     assert!(

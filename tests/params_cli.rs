@@ -271,15 +271,7 @@ fn risk_with_dates_and_params() {
         .output()
         .unwrap();
     assert_eq!(o.status.code(), Some(0));
-    let rows = |d: &Path| -> Vec<Vec<String>> {
-        csv::ReaderBuilder::new()
-            .has_headers(false)
-            .from_path(d.join("positions.csv"))
-            .unwrap()
-            .records()
-            .map(|r| r.unwrap().iter().map(String::from).collect())
-            .collect()
-    };
+    let rows = |d: &Path| crate::common::csv_file_rows(&d.join("positions.csv"));
     let (pa, pb) = (rows(&ra), rows(&rb));
     assert_eq!(pa[0][8], "expiry_years");
     for (x, y) in pa[1..].iter().zip(&pb[1..]) {

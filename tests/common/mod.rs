@@ -24,6 +24,17 @@ pub fn read_csv(text: impl AsRef<[u8]>) -> (Vec<String>, Vec<Vec<String>>) {
     (h, rows)
 }
 
+/// Every record of a CSV file, the header row included, as strings.
+pub fn csv_file_rows(path: &std::path::Path) -> Vec<Vec<String>> {
+    csv::ReaderBuilder::new()
+        .has_headers(false)
+        .from_path(path)
+        .unwrap()
+        .records()
+        .map(|r| r.unwrap().iter().map(String::from).collect())
+        .collect()
+}
+
 /// Position of column `name` in a header (panics when absent).
 pub fn col(h: &[String], name: &str) -> usize {
     h.iter()
