@@ -6,6 +6,7 @@
 //! finite (a standard error of an unidentified parameter, the condition
 //! number of a singular problem) is left empty, never written as NaN/inf.
 
+use super::html::{esc, PALETTE};
 use crate::book::writer::write_field;
 use crate::market::calibrate::{model_price, model_vol, usable, CalibrationSpec, Fit, PARAM_NAMES};
 use crate::market::quotes::{Quote, QuoteSheet};
@@ -291,24 +292,6 @@ pub fn write_residuals(
     }
     Ok(())
 }
-
-fn esc(s: &str) -> String {
-    s.replace('&', "&amp;")
-        .replace('<', "&lt;")
-        .replace('>', "&gt;")
-        .replace('"', "&quot;")
-}
-
-const PALETTE: [RGBColor; 8] = [
-    RGBColor(31, 119, 180),
-    RGBColor(255, 127, 14),
-    RGBColor(44, 160, 44),
-    RGBColor(214, 39, 40),
-    RGBColor(148, 103, 189),
-    RGBColor(140, 86, 75),
-    RGBColor(227, 119, 194),
-    RGBColor(23, 190, 207),
-];
 
 /// Largest number of expiry charts per fitted group.
 const MAX_CHARTS: usize = 16;

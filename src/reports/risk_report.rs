@@ -11,6 +11,7 @@
 //! book runs ([`ScenarioFailureWriter`]); [`write_all`] writes the rest from
 //! the accumulated [`RiskReport`].
 
+use super::html::{esc, PALETTE};
 pub use crate::reports::risk::FailedRow;
 use crate::reports::risk::{Cell, CurvePoint, Group, RiskReport, ScenarioFailure, ScenarioKind};
 use plotters::prelude::*;
@@ -320,24 +321,6 @@ fn money(x: f64) -> String {
     };
     s.replace("-", "&minus;")
 }
-
-fn esc(s: &str) -> String {
-    s.replace('&', "&amp;")
-        .replace('<', "&lt;")
-        .replace('>', "&gt;")
-        .replace('"', "&quot;")
-}
-
-const PALETTE: [RGBColor; 8] = [
-    RGBColor(31, 119, 180),
-    RGBColor(255, 127, 14),
-    RGBColor(44, 160, 44),
-    RGBColor(214, 39, 40),
-    RGBColor(148, 103, 189),
-    RGBColor(140, 86, 75),
-    RGBColor(227, 119, 194),
-    RGBColor(23, 190, 207),
-];
 
 /// One line of a chart: its label, whether it is the book total (drawn
 /// black and thicker), and one value per spot shock.
