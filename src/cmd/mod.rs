@@ -31,6 +31,7 @@ written; no output file is then replaced)."
 pub mod book_inputs;
 pub mod calibrate;
 pub mod crosscheck;
+pub mod explain;
 pub mod greeks;
 pub mod output;
 pub mod price;
