@@ -843,3 +843,7 @@ fn term_values(t: &Terms) -> [f64; 9] {
 fn term_fields(t: &Terms) -> Vec<String> {
     term_values(t).map(num).to_vec()
 }
+
+#[cfg(test)]
+#[path = "explain_tests.rs"]
+mod tests;

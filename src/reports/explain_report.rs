@@ -71,6 +71,60 @@ pub fn money(x: f64) -> String {
     }
 }
 
+/// An amount for the tables: two decimals, thousands separators, a true
+/// minus sign (scientific form from 1e15); one rule for every column.
+pub fn amount(x: f64) -> String {
+    if !x.is_finite() {
+        return "error".into();
+    }
+    let a = x.abs();
+    let body = if a >= 1e15 {
+        format!("{a:.3e}")
+    } else {
+        let t = format!("{a:.2}");
+        let (int, frac) = t.split_once('.').unwrap_or((&t, "00"));
+        let mut grouped = String::new();
+        for (i, c) in int.chars().enumerate() {
+            if i > 0 && (int.len() - i) % 3 == 0 {
+                grouped.push(',');
+            }
+            grouped.push(c);
+        }
+        format!("{grouped}.{frac}")
+    };
+    if x < 0.0 && body.chars().any(|c| c.is_ascii_digit() && c != '0') {
+        format!("\u{2212}{body}")
+    } else {
+        body
+    }
+}
+
+/// Tick labels of one axis: one suffix (none, k, M, bn) for every tick,
+/// chosen by the largest, and as many decimals as the step needs.
+fn tick_label(v: f64, largest: f64, step: f64) -> String {
+    let (div, suffix) = if largest >= 1e9 {
+        (1e9, "bn")
+    } else if largest >= 1e6 {
+        (1e6, "M")
+    } else if largest >= 1e3 {
+        (1e3, "k")
+    } else {
+        (1.0, "")
+    };
+    let scaled_step = step / div;
+    let decimals = if scaled_step >= 1.0 {
+        0
+    } else {
+        (-scaled_step.log10().floor()) as usize
+    };
+    let t = format!("{:.*}{suffix}", decimals.min(6), (v / div).abs());
+    if v < 0.0 {
+        format!("\u{2212}{t}")
+    } else {
+        t
+    }
+}
+
 /// Three significant digits for `1 <= a < 1000`.
 fn sig3(a: f64) -> String {
     if a >= 100.0 {
@@ -130,6 +184,7 @@ pub fn waterfall_svg(title: &str, steps: &[(&str, f64)], total: (&str, f64), lo:
         t = esc(title)
     );
     // Grid and tick labels.
+    let largest = lo.abs().max(hi.abs());
     let mut v = lo;
     let mut guard = 0;
     while v <= hi + step * 1e-9 && guard < 50 {
@@ -141,7 +196,7 @@ pub fn waterfall_svg(title: &str, steps: &[(&str, f64)], total: (&str, f64), lo:
             c = if v.abs() < step * 1e-9 { "#444" } else { "#e6e6e6" },
             tx = left - 6.0,
             ty = yy + 4.0,
-            label = money(if v.abs() < step * 1e-9 { 0.0 } else { v }),
+            label = tick_label(if v.abs() < step * 1e-9 { 0.0 } else { v }, largest, step),
         );
         v += step;
         guard += 1;
@@ -208,7 +263,7 @@ fn range(values: &[f64], total: f64) -> (f64, f64) {
 }
 
 fn td(x: f64) -> String {
-    format!("<td>{}</td>", money(x))
+    format!("<td>{}</td>", amount(x))
 }
 
 fn attribution_row(name: &str, a: &Aggregate, book: bool) -> String {
@@ -256,7 +311,7 @@ fn attribution_table(r: &BookExplain) -> String {
     let mut t = String::from(
         "<div class=\"scroll\"><table><thead><tr><th rowspan=\"2\">underlying</th><th rowspan=\"2\">positions</th>\
 <th rowspan=\"2\">value before</th><th rowspan=\"2\">value after</th><th rowspan=\"2\">change</th>\
-<th colspan=\"7\">Greek attribution (at yesterday's inputs)</th><th colspan=\"5\">full-revaluation waterfall</th>\
+<th colspan=\"7\">Greek attribution (at yesterday's inputs), currency</th><th colspan=\"5\">full-revaluation waterfall, currency</th>\
 <th rowspan=\"2\">new</th><th rowspan=\"2\">expired</th><th rowspan=\"2\">left out</th><th rowspan=\"2\">status</th></tr><tr>\
 <th>spot</th><th>vol</th><th>time</th><th>rates</th><th>jumps</th><th>cross</th><th>unexplained</th>",
     );
