@@ -176,7 +176,10 @@ pub fn run(args: Args) -> Result<ExitCode> {
             title: args.title.clone(),
             before: before.name.clone(),
             after: after.name.clone(),
-            generated: jiff::Timestamp::now().round(jiff::Unit::Second).map(|t| t.to_string()).unwrap_or_default(),
+            generated: jiff::Timestamp::now()
+                .round(jiff::Unit::Second)
+                .map(|t| t.to_string())
+                .unwrap_or_default(),
         };
         std::fs::write(
             staged.path().join(REPORT_FILE),

@@ -202,7 +202,9 @@ impl Explain {
     /// The first value that is not finite, by column name.
     pub fn non_finite(&self) -> Option<(&'static str, f64)> {
         let names = COLUMNS[3..18].iter().chain(&EXTRA_COLUMNS[..9]);
-        let values = explain_values(self).into_iter().chain(term_values(&self.terms));
+        let values = explain_values(self)
+            .into_iter()
+            .chain(term_values(&self.terms));
         names
             .zip(values)
             .find(|(_, v)| !v.is_finite())
@@ -212,7 +214,9 @@ impl Explain {
 
 /// Series price of a contract, or the error as text.
 fn value(c: &Contract) -> Result<Greeks, String> {
-    series::price(c).map(|r| r.greeks).map_err(|e| e.to_string())
+    series::price(c)
+        .map(|r| r.greeks)
+        .map_err(|e| e.to_string())
 }
 
 /// A contract with some inputs moved, validated (a mixed state can leave
@@ -280,7 +284,8 @@ pub fn explain_position(before: &Contract, after: &Contract, w: f64) -> Result<E
         let v = if i == 4 {
             value(after)?.price
         } else {
-            value(&mixed(&c, step)?).map_err(|e| format!("waterfall step {step}: {e}"))?
+            value(&mixed(&c, step)?)
+                .map_err(|e| format!("waterfall step {step}: {e}"))?
                 .price
         };
         values[i + 1] = w * v;
@@ -357,7 +362,11 @@ pub struct ExplainBook {
 ///
 /// # Errors
 /// The message of the fatal problem.
-pub fn read_book<R: Read>(input: R, name: &str, inputs: &BookInputs) -> Result<ExplainBook, String> {
+pub fn read_book<R: Read>(
+    input: R,
+    name: &str,
+    inputs: &BookInputs,
+) -> Result<ExplainBook, String> {
     let io = |e: std::io::Error| format!("cannot read {name}: {e}");
     let mut reader = RecordReader::new(input);
     let mut header = Record::default();
@@ -455,7 +464,10 @@ fn term_differences(b: &Position, a: &Position) -> Vec<String> {
     num("quantity", b.quantity, a.quantity);
     num("multiplier", b.multiplier, a.multiplier);
     if b.underlying != a.underlying {
-        out.push(format!("underlying '{}' vs '{}'", b.underlying, a.underlying));
+        out.push(format!(
+            "underlying '{}' vs '{}'",
+            b.underlying, a.underlying
+        ));
     }
     out
 }
@@ -523,10 +535,7 @@ pub fn explain_books(before: &ExplainBook, after: &ExplainBook) -> Vec<PositionE
             let a_at = ia.get(id).map(Vec::as_slice).unwrap_or(&[]);
             let b_entry = b_at.first().map(|&i| &before.entries[i]);
             let a_entry = a_at.first().map(|&i| &after.entries[i]);
-            let underlying = a_entry
-                .or(b_entry)
-                .map(&underlying_of)
-                .unwrap_or_default();
+            let underlying = a_entry.or(b_entry).map(&underlying_of).unwrap_or_default();
             let outcome = outcome(before, after, id, b_at, a_at, b_entry, a_entry);
             out.push(PositionExplain {
                 id: id.to_string(),
@@ -596,7 +605,13 @@ fn outcome(
                 )),
             }
         }
-        (Some(b), None) => one_side(b, before, b_entry.unwrap().line, "value_before", Outcome::Expired),
+        (Some(b), None) => one_side(
+            b,
+            before,
+            b_entry.unwrap().line,
+            "value_before",
+            Outcome::Expired,
+        ),
         (None, Some(a)) => one_side(a, after, a_entry.unwrap().line, "value_after", Outcome::New),
         (None, None) => unreachable!("an id comes from one of the books"),
     }
@@ -722,7 +737,10 @@ impl BookExplain {
     pub fn all_ok(&self) -> bool {
         self.book.left_out == 0
             && self.book.non_finite().is_none()
-            && self.underlyings.iter().all(|(_, a)| a.non_finite().is_none())
+            && self
+                .underlyings
+                .iter()
+                .all(|(_, a)| a.non_finite().is_none())
     }
 }
 
@@ -741,7 +759,11 @@ pub const BOOK_NAME: &str = "(book)";
 pub fn write_csv<W: std::io::Write>(out: W, r: &BookExplain) -> std::io::Result<()> {
     let mut w = csv::Writer::from_writer(out);
     let to_io = |e: csv::Error| std::io::Error::other(e.to_string());
-    let header: Vec<&str> = COLUMNS.iter().chain(EXTRA_COLUMNS.iter()).copied().collect();
+    let header: Vec<&str> = COLUMNS
+        .iter()
+        .chain(EXTRA_COLUMNS.iter())
+        .copied()
+        .collect();
     w.write_record(&header).map_err(to_io)?;
     let empty = String::new;
     for p in &r.positions {

@@ -156,7 +156,13 @@ fn tick_step(span: f64) -> f64 {
 /// A waterfall chart: floating bars for `steps` starting from zero, then a
 /// total bar. `lo`/`hi` is the value range shared by the charts drawn side
 /// by side.
-pub fn waterfall_svg(title: &str, steps: &[(&str, f64)], total: (&str, f64), lo: f64, hi: f64) -> String {
+pub fn waterfall_svg(
+    title: &str,
+    steps: &[(&str, f64)],
+    total: (&str, f64),
+    lo: f64,
+    hi: f64,
+) -> String {
     let (w, h) = (560.0, 340.0);
     let (left, right, top, bottom) = (70.0, 10.0, 34.0, 48.0);
     let plot_h = h - top - bottom;
@@ -193,7 +199,11 @@ pub fn waterfall_svg(title: &str, steps: &[(&str, f64)], total: (&str, f64), lo:
             s,
             r##"<line x1="{left}" x2="{x2}" y1="{yy:.1}" y2="{yy:.1}" stroke="{c}" stroke-width="1"/><text x="{tx}" y="{ty:.1}" font-size="11" text-anchor="end" font-family="sans-serif">{label}</text>"##,
             x2 = w - right,
-            c = if v.abs() < step * 1e-9 { "#444" } else { "#e6e6e6" },
+            c = if v.abs() < step * 1e-9 {
+                "#444"
+            } else {
+                "#e6e6e6"
+            },
             tx = left - 6.0,
             ty = yy + 4.0,
             label = tick_label(if v.abs() < step * 1e-9 { 0.0 } else { v }, largest, step),
@@ -207,7 +217,13 @@ pub fn waterfall_svg(title: &str, steps: &[(&str, f64)], total: (&str, f64), lo:
         yy = top + plot_h / 2.0
     );
     let mut cum = 0.0;
-    let bar = |s: &mut String, i: usize, from: f64, to: f64, colour: &str, label: &str, value: f64| {
+    let bar = |s: &mut String,
+               i: usize,
+               from: f64,
+               to: f64,
+               colour: &str,
+               label: &str,
+               value: f64| {
         let x = left + slot * i as f64 + slot * 0.15;
         let bw = slot * 0.7;
         let (y0, y1) = (y(from.max(to)), y(from.min(to)));
@@ -218,7 +234,11 @@ pub fn waterfall_svg(title: &str, steps: &[(&str, f64)], total: (&str, f64), lo:
             l = esc(label),
             m = money(value)
         );
-        let ty = if value >= 0.0 { y0 - 4.0 } else { y0 + hgt + 12.0 };
+        let ty = if value >= 0.0 {
+            y0 - 4.0
+        } else {
+            y0 + hgt + 12.0
+        };
         let _ = write!(
             s,
             r#"<text x="{cx:.1}" y="{ty:.1}" font-size="11" text-anchor="middle" font-family="sans-serif">{m}</text><text x="{cx:.1}" y="{ly:.1}" font-size="11" text-anchor="middle" font-family="sans-serif">{l}</text>"#,
@@ -276,7 +296,11 @@ fn attribution_row(name: &str, a: &Aggregate, book: bool) -> String {
         a.positions
     );
     if a.non_finite().is_some() {
-        let _ = write!(r, "<td colspan=\"15\" class=\"warn\">{}</td>", esc(&a.status()));
+        let _ = write!(
+            r,
+            "<td colspan=\"15\" class=\"warn\">{}</td>",
+            esc(&a.status())
+        );
     } else {
         for v in [
             e.value_before,
@@ -320,7 +344,11 @@ fn attribution_table(r: &BookExplain) -> String {
     }
     t.push_str("</tr></thead><tbody>");
     for (name, a) in &r.underlyings {
-        let shown = if name.is_empty() { "(no underlying)" } else { name };
+        let shown = if name.is_empty() {
+            "(no underlying)"
+        } else {
+            name
+        };
         t.push_str(&attribution_row(shown, a, false));
     }
     t.push_str(&attribution_row(BOOK_NAME, &r.book, true));
@@ -438,7 +466,10 @@ pub fn html(r: &BookExplain, info: &PageInfo) -> String {
     let b = &r.book;
     let e = &b.explain;
     let charts = if b.non_finite().is_some() {
-        format!("<p class=\"warn\">The book sums are not finite ({}); no chart.</p>", esc(&b.status()))
+        format!(
+            "<p class=\"warn\">The book sums are not finite ({}); no chart.</p>",
+            esc(&b.status())
+        )
     } else {
         let steps: Vec<(&str, f64)> = STEP_ORDER.iter().copied().zip(e.steps).collect();
         let t = &e.terms;
@@ -464,7 +495,13 @@ pub fn html(r: &BookExplain, info: &PageInfo) -> String {
                 lo,
                 hi
             ),
-            waterfall_svg("Book: Greek attribution", &greek, ("change", e.change), lo, hi)
+            waterfall_svg(
+                "Book: Greek attribution",
+                &greek,
+                ("change", e.change),
+                lo,
+                hi
+            )
         )
     };
     format!(

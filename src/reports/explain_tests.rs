@@ -110,7 +110,10 @@ fn time_rates_and_jump_terms_leave_a_second_order_remainder() {
             let r = ratios(&c, group, 6);
             eprintln!("group {group} moved and halved, remainder ratios {r:.3?}");
             let last = r[r.len() - 1];
-            assert!((3.6..4.4).contains(&last), "group {group}: ratio {last} for {c:?}: {r:?}");
+            assert!(
+                (3.6..4.4).contains(&last),
+                "group {group}: ratio {last} for {c:?}: {r:?}"
+            );
         }
     }
 }
@@ -221,7 +224,8 @@ fn without_jumps_vanna_and_volga_are_the_textbook_black_scholes_ones() {
     assert!((g.volga - volga).abs() < 1e-10, "{} vs {volga}", g.volga);
 }
 
-const HEAD: &str = "id,underlying,kind,spot,strike,expiry,rate,vol,jump_rate,jump_mean,jump_vol,quantity";
+const HEAD: &str =
+    "id,underlying,kind,spot,strike,expiry,rate,vol,jump_rate,jump_mean,jump_vol,quantity";
 
 fn book(name: &str, rows: &[&str]) -> ExplainBook {
     let text = format!("{HEAD}\n{}\n", rows.join("\n"));
@@ -282,14 +286,28 @@ fn matching_reports_new_expired_bad_and_changed_positions() {
         status_of(&r, ""),
         "error: b.csv line 8: id is empty: positions are matched by id"
     );
-    assert_eq!((r.book.positions, r.book.new, r.book.expired, r.book.left_out), (1, 1, 1, 4));
+    assert_eq!(
+        (
+            r.book.positions,
+            r.book.new,
+            r.book.expired,
+            r.book.left_out
+        ),
+        (1, 1, 1, 4)
+    );
     assert!(r.book.status().starts_with("partial: 4 positions left out"));
     let x = &r.underlyings.iter().find(|(n, _)| n == "X").unwrap().1;
     assert_eq!(x.status(), "ok");
-    assert_eq!(x.explain, r.positions.iter().find_map(|p| match &p.outcome {
-        Outcome::Explained(e, _) => Some(*e),
-        _ => None,
-    }).unwrap());
+    assert_eq!(
+        x.explain,
+        r.positions
+            .iter()
+            .find_map(|p| match &p.outcome {
+                Outcome::Explained(e, _) => Some(*e),
+                _ => None,
+            })
+            .unwrap()
+    );
 }
 
 #[test]
@@ -300,5 +318,8 @@ fn a_book_without_an_id_column_is_refused_naming_the_file() {
         &BookInputs::default(),
     )
     .unwrap_err();
-    assert!(e.starts_with("before.csv line 1: the book has no id column"), "{e}");
+    assert!(
+        e.starts_with("before.csv line 1: the book has no id column"),
+        "{e}"
+    );
 }
