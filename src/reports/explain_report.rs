@@ -44,33 +44,6 @@ pub struct PageInfo {
     pub generated: String,
 }
 
-/// An amount for the page: `k`, `M`, `bn` suffixes with three significant
-/// digits from 10,000 up, two decimals below, a true minus sign.
-pub fn money(x: f64) -> String {
-    if !x.is_finite() {
-        return "error".into();
-    }
-    let a = x.abs();
-    let s = if a >= 1e12 {
-        format!("{:.3e}", a)
-    } else if a >= 1e9 {
-        format!("{}bn", sig3(a / 1e9))
-    } else if a >= 1e6 {
-        format!("{}M", sig3(a / 1e6))
-    } else if a >= 1e4 {
-        format!("{}k", sig3(a / 1e3))
-    } else {
-        format!("{a:.2}")
-    };
-    // A value that rounds to zero is shown without a sign.
-    let zero = s.chars().all(|c| c == '0' || c == '.');
-    if x < 0.0 && !zero {
-        format!("\u{2212}{s}")
-    } else {
-        s
-    }
-}
-
 /// An amount for the tables: two decimals, thousands separators, a true
 /// minus sign (scientific form from 1e15); one rule for every column.
 pub fn amount(x: f64) -> String {
@@ -117,22 +90,14 @@ fn tick_label(v: f64, largest: f64, step: f64) -> String {
     } else {
         (-scaled_step.log10().floor()) as usize
     };
+    if v == 0.0 {
+        return "0".into();
+    }
     let t = format!("{:.*}{suffix}", decimals.min(6), (v / div).abs());
     if v < 0.0 {
         format!("\u{2212}{t}")
     } else {
         t
-    }
-}
-
-/// Three significant digits for `1 <= a < 1000`.
-fn sig3(a: f64) -> String {
-    if a >= 100.0 {
-        format!("{a:.0}")
-    } else if a >= 10.0 {
-        format!("{a:.1}")
-    } else {
-        format!("{a:.2}")
     }
 }
 
@@ -216,6 +181,15 @@ pub fn waterfall_svg(
         r#"<text x="14" y="{yy}" font-size="11" text-anchor="middle" font-family="sans-serif" transform="rotate(-90 14 {yy})">P&amp;L</text>"#,
         yy = top + plot_h / 2.0
     );
+    // Bar labels: whole units once the axis reaches 1,000.
+    let label_of = |v: f64| {
+        if largest >= 1e3 && v.abs() < 1e15 {
+            let t = amount(v.round());
+            t.strip_suffix(".00").unwrap_or(&t).to_string()
+        } else {
+            amount(v)
+        }
+    };
     let mut cum = 0.0;
     let bar = |s: &mut String,
                i: usize,
@@ -232,7 +206,7 @@ pub fn waterfall_svg(
             s,
             r#"<rect x="{x:.1}" y="{y0:.1}" width="{bw:.1}" height="{hgt:.1}" fill="{colour}"><title>{l}: {m}</title></rect>"#,
             l = esc(label),
-            m = money(value)
+            m = amount(value)
         );
         let ty = if value >= 0.0 {
             y0 - 4.0
@@ -243,7 +217,7 @@ pub fn waterfall_svg(
             s,
             r#"<text x="{cx:.1}" y="{ty:.1}" font-size="11" text-anchor="middle" font-family="sans-serif">{m}</text><text x="{cx:.1}" y="{ly:.1}" font-size="11" text-anchor="middle" font-family="sans-serif">{l}</text>"#,
             cx = x + bw / 2.0,
-            m = money(value),
+            m = label_of(value),
             ly = h - bottom + 16.0,
             l = esc(label)
         );
