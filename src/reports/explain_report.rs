@@ -223,7 +223,13 @@ pub fn waterfall_svg(
         );
     };
     for (i, (label, v)) in steps.iter().enumerate() {
-        let colour = if *v >= 0.0 { GAIN } else { LOSS };
+        let colour = if *v > 0.0 {
+            GAIN
+        } else if *v < 0.0 {
+            LOSS
+        } else {
+            TOTAL
+        };
         bar(&mut s, i, cum, cum + v, colour, label, *v);
         // Connector to the next bar.
         let yy = y(cum + v);
@@ -362,7 +368,7 @@ fn top_unexplained(r: &BookExplain) -> String {
         };
         let _ = write!(
             t,
-            "<tr><td>{}</td><td>{}</td>{}{}{}<td>{share}</td><td>{:.1}</td></tr>",
+            "<tr><td>{}</td><td class=\"l\">{}</td>{}{}{}<td>{share}</td><td>{:.1}</td></tr>",
             esc(&p.id),
             esc(&p.underlying),
             td(e.change),
@@ -391,7 +397,7 @@ fn listed(r: &BookExplain, title: &str, pick: fn(&Outcome) -> Option<f64>, value
     for (p, v) in rows.iter().take(MAX_LISTED) {
         let _ = write!(
             t,
-            "<tr><td>{}</td><td>{}</td>{}</tr>",
+            "<tr><td>{}</td><td class=\"l\">{}</td>{}</tr>",
             esc(&p.id),
             esc(&p.underlying),
             td(*v)
@@ -425,7 +431,7 @@ fn failed(r: &BookExplain) -> String {
     for (p, m) in rows.iter().take(MAX_LISTED) {
         let _ = write!(
             t,
-            "<tr><td>{}</td><td>{}</td><td class=\"status\">{}</td></tr>",
+            "<tr><td>{}</td><td class=\"l\">{}</td><td class=\"status\">{}</td></tr>",
             esc(&p.id),
             esc(&p.underlying),
             esc(m)
@@ -487,7 +493,7 @@ h1 {{ font-size: 22px; }} h2 {{ font-size: 18px; margin-top: 32px; border-bottom
 table {{ border-collapse: collapse; font-size: 13px; margin: 8px 0; }}
 th, td {{ border: 1px solid #ddd; padding: 4px 8px; text-align: right; white-space: nowrap; }}
 th {{ background: #f4f4f4; text-align: center; }} td:first-child {{ text-align: left; }}
-td.status {{ text-align: left; white-space: normal; min-width: 16em; }}
+td.l {{ text-align: left; }} td.status {{ text-align: left; white-space: normal; min-width: 16em; }}
 tr.book td {{ font-weight: bold; background: #fafafa; }}
 .warn {{ color: #a00; }} .note {{ color: #555; font-size: 13px; }}
 .scroll {{ overflow-x: auto; }} figure {{ margin: 12px 0; }}
