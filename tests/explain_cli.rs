@@ -353,3 +353,21 @@ fn the_page_is_self_contained_with_parseable_charts() {
         assert!(page.contains(text), "{text}");
     }
 }
+
+#[test]
+fn output_is_the_same_on_one_and_two_threads() {
+    // Determinism rule of the project: the same digits on any thread count.
+    let run = |threads: &str| {
+        saltus()
+            .args(["--threads", threads, "explain"])
+            .arg(data("demo_explain_before.csv"))
+            .arg(data("demo_explain_after.csv"))
+            .arg("-q")
+            .output()
+            .unwrap()
+            .stdout
+    };
+    let one = run("1");
+    assert!(!one.is_empty());
+    assert_eq!(one, run("2"));
+}

@@ -9,7 +9,9 @@
 //! bad row is still reported against its position. [`explain_books`] walks
 //! the positions (the ids of BEFORE in its order, then the ids only in AFTER
 //! in theirs) and gives each one [`Outcome`]: explained, `new`, `expired`
-//! or an error naming the file, line and problem. [`Aggregate`] sums the
+//! or an error naming the file, line and problem (the outcomes are
+//! computed on the rayon pool; the order is fixed before, so the output
+//! does not depend on the thread count). [`Aggregate`] sums the
 //! explained positions per underlying and for the book, in that order, and
 //! counts what it leaves out.
 //!
@@ -505,46 +507,57 @@ fn no_id(book: &ExplainBook, e: &Entry) -> String {
 /// in AFTER in theirs. Records without a usable id, repeated ids and rows
 /// that do not parse become error rows; nothing is dropped.
 pub fn explain_books(before: &ExplainBook, after: &ExplainBook) -> Vec<PositionExplain> {
+    use rayon::prelude::*;
     let ib = index(before);
     let ia = index(after);
-    let mut out = Vec::new();
+    // First the list of positions in output order (cheap, sequential), then
+    // their outcomes on the rayon pool; `collect` keeps the order, and each
+    // outcome depends on its own position only.
+    enum Job<'a> {
+        NoId(&'a ExplainBook, &'a Entry),
+        Id(&'a str),
+    }
+    let mut jobs = Vec::new();
     let mut done: std::collections::HashSet<&str> = std::collections::HashSet::new();
+    for (book, first) in [(before, true), (after, false)] {
+        for e in &book.entries {
+            match e.id.as_deref().filter(|s| !s.is_empty()) {
+                None => jobs.push(Job::NoId(book, e)),
+                Some(id) => {
+                    if (first || !ib.contains_key(id)) && done.insert(id) {
+                        jobs.push(Job::Id(id));
+                    }
+                }
+            }
+        }
+    }
     let underlying_of = |e: &Entry| -> String {
         match &e.position {
             Ok(p) => p.underlying.clone(),
             Err(_) => e.underlying.clone().unwrap_or_default(),
         }
     };
-    for (book, first) in [(before, true), (after, false)] {
-        for e in &book.entries {
-            let id = match e.id.as_deref().filter(|s| !s.is_empty()) {
-                Some(id) => id,
-                None => {
-                    out.push(PositionExplain {
-                        id: String::new(),
-                        underlying: underlying_of(e),
-                        outcome: Outcome::Error(no_id(book, e)),
-                    });
-                    continue;
+    jobs.par_iter()
+        .with_min_len(64)
+        .map(|job| match *job {
+            Job::NoId(book, e) => PositionExplain {
+                id: String::new(),
+                underlying: underlying_of(e),
+                outcome: Outcome::Error(no_id(book, e)),
+            },
+            Job::Id(id) => {
+                let b_at = ib.get(id).map(Vec::as_slice).unwrap_or(&[]);
+                let a_at = ia.get(id).map(Vec::as_slice).unwrap_or(&[]);
+                let b_entry = b_at.first().map(|&i| &before.entries[i]);
+                let a_entry = a_at.first().map(|&i| &after.entries[i]);
+                PositionExplain {
+                    id: id.to_string(),
+                    underlying: a_entry.or(b_entry).map(underlying_of).unwrap_or_default(),
+                    outcome: outcome(before, after, id, b_at, a_at, b_entry, a_entry),
                 }
-            };
-            if !first && ib.contains_key(id) || !done.insert(id) {
-                continue;
             }
-            let b_at = ib.get(id).map(Vec::as_slice).unwrap_or(&[]);
-            let a_at = ia.get(id).map(Vec::as_slice).unwrap_or(&[]);
-            let b_entry = b_at.first().map(|&i| &before.entries[i]);
-            let a_entry = a_at.first().map(|&i| &after.entries[i]);
-            let underlying = a_entry.or(b_entry).map(&underlying_of).unwrap_or_default();
-            let outcome = outcome(before, after, id, b_at, a_at, b_entry, a_entry);
-            out.push(PositionExplain {
-                id: id.to_string(),
-                underlying,
-                outcome,
-            });
-        }
-    }
-    out
+        })
+        .collect()
 }
 
 fn outcome(
