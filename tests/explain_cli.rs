@@ -371,3 +371,38 @@ fn output_is_the_same_on_one_and_two_threads() {
     assert!(!one.is_empty());
     assert_eq!(one, run("2"));
 }
+
+#[test]
+fn params_take_one_fitted_file_per_day() {
+    // --params BEFORE,AFTER: only the fitted vol moves (0.20 to 0.21), so
+    // every non-vol column is zero and vega x 0.01 + volga x 0.01^2 / 2
+    // explains the change to third order.
+    let dir = tempfile::tempdir().unwrap();
+    let head = "id,underlying,kind,spot,strike,expiry,rate";
+    let row = "A,ZU,call,100,100,0.5,0.03";
+    let (b, a) = (dir.path().join("b.csv"), dir.path().join("a.csv"));
+    fs::write(&b, format!("{head}\n{row}\n")).unwrap();
+    fs::write(&a, format!("{head}\n{row}\n")).unwrap();
+    let ph = "underlying,vol,jump_rate,jump_mean,jump_vol,status";
+    let (p0, p1) = (dir.path().join("p0.csv"), dir.path().join("p1.csv"));
+    fs::write(&p0, format!("{ph}\nZU,0.20,0.5,-0.1,0.1,ok\n")).unwrap();
+    fs::write(&p1, format!("{ph}\nZU,0.21,0.5,-0.1,0.1,ok\n")).unwrap();
+    let pair = format!("{},{}", p0.display(), p1.display());
+    let (code, _, rows) = explain(&b, &a, &["--params", &pair]);
+    assert_eq!(code, 0, "{rows:?}");
+    let r = &rows[0];
+    for c in [
+        "from_spot",
+        "from_time",
+        "from_rates",
+        "from_jumps",
+        "from_cross",
+        "step_spot",
+        "step_time",
+    ] {
+        assert_eq!(f(r, c), 0.0, "{c}");
+    }
+    assert!(f(r, "from_vol") > 0.0);
+    assert!(f(r, "unexplained").abs() < 1e-3 * f(r, "change").abs());
+    assert_eq!(f(r, "step_vol"), f(r, "change"));
+}

@@ -13,7 +13,6 @@ use super::output::{Output, OutputDir};
 use anyhow::{anyhow, bail, Context, Result};
 use saltus::book::BookInputs;
 use saltus::market::params::FittedParams;
-use saltus::model::Short;
 use saltus::reports::explain::{self, BookExplain, ExplainBook};
 use saltus::reports::explain_report::{self, PageInfo, REPORT_FILE};
 use std::io::Write;
@@ -44,6 +43,7 @@ level is position, underlying or book (the book row's underlying reads (book)). 
 new or expired for a position in one book only (its value is in value_after or value_before, \
 and it is not in change); error: FILE line N: problem; on aggregates partial: N positions left \
 out when error rows are excluded from the sums.\n\
+explain writes no expiry_years column: dt_years holds each position's time step.\n\
 Both books are held in memory.\n\
 Exit codes: 0 every position explained (or new or expired); 1 some positions failed or an \
 aggregate overflowed; ",
@@ -227,15 +227,15 @@ fn summary(r: &BookExplain, before: &ExplainBook, after: &ExplainBook) {
     );
     if b.non_finite().is_none() {
         eprintln!(
-            "saltus: book change {} = spot {} + vol {} + time {} + rates {} + jumps {} + cross {} + unexplained {}",
-            Short(b.explain.change),
-            Short(b.explain.terms.spot()),
-            Short(b.explain.terms.vol()),
-            Short(b.explain.terms.time()),
-            Short(b.explain.terms.rates()),
-            Short(b.explain.terms.jumps()),
-            Short(b.explain.terms.cross()),
-            Short(b.explain.unexplained()),
+            "saltus: book change {:.2} = spot {:.2} + vol {:.2} + time {:.2} + rates {:.2} + jumps {:.2} + cross {:.2} + unexplained {:.2}",
+            b.explain.change,
+            b.explain.terms.spot(),
+            b.explain.terms.vol(),
+            b.explain.terms.time(),
+            b.explain.terms.rates(),
+            b.explain.terms.jumps(),
+            b.explain.terms.cross(),
+            b.explain.unexplained(),
         );
     }
     for book in [before, after] {

@@ -323,3 +323,14 @@ fn a_book_without_an_id_column_is_refused_naming_the_file() {
         "{e}"
     );
 }
+
+#[test]
+fn a_waterfall_state_outside_the_domain_is_an_error_naming_the_step() {
+    // Yesterday's jump rate with today's expiry: 200 x 600 = 1.2e5 jumps,
+    // above the model's limit of 1e5 (model::MAX_JUMP_INTENSITY_TIMES_EXPIRY),
+    // although both days' contracts are valid.
+    let b = contract(Call, 100.0, 100.0, 1.0, 0.03, 0.0, 0.2, 200.0, -0.01, 0.01);
+    let a = contract(Call, 100.0, 100.0, 600.0, 0.03, 0.0, 0.2, 0.1, -0.01, 0.01);
+    let e = explain_position(&b, &a, 1.0).unwrap_err();
+    assert!(e.starts_with("waterfall step time: jump_rate = 200 is outside"), "{e}");
+}
