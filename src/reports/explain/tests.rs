@@ -3,6 +3,7 @@
 //! independent references, and the matching of two books.
 
 use super::*;
+use crate::book::BookInputs;
 use crate::model::OptionKind::{Call, Put};
 use crate::model::{Contract, JumpParams, OptionKind};
 
@@ -332,5 +333,8 @@ fn a_waterfall_state_outside_the_domain_is_an_error_naming_the_step() {
     let b = contract(Call, 100.0, 100.0, 1.0, 0.03, 0.0, 0.2, 200.0, -0.01, 0.01);
     let a = contract(Call, 100.0, 100.0, 600.0, 0.03, 0.0, 0.2, 0.1, -0.01, 0.01);
     let e = explain_position(&b, &a, 1.0).unwrap_err();
-    assert!(e.starts_with("waterfall step time: jump_rate = 200 is outside"), "{e}");
+    assert!(
+        e.starts_with("waterfall step time: jump_rate = 200 is outside"),
+        "{e}"
+    );
 }
