@@ -143,10 +143,16 @@ def _column_arg(values: Any) -> Any:
     return out
 
 
-def _text_arg(values: Any) -> List[Optional[str]]:
-    arr = _as_numpy(values)
+def _text_arg(values: Any) -> List[Any]:
+    """The column as a list; the native call accepts it as it is when every
+    element is a str or None (the common case, no copy in Python)."""
+    return _as_numpy(values).tolist()
+
+
+def _clean_text(values: List[Any]) -> List[Optional[str]]:
+    """str for anything that is not None or a NaN (pandas' empty cell)."""
     return [None if (v is None or (isinstance(v, float) and v != v)) else str(v)
-            for v in arr.tolist()]
+            for v in values]
 
 
 def _assemble(frame: Any, kind: str, results: Dict[str, Any], order: List[str]) -> Any:
@@ -207,10 +213,13 @@ def price(frame: Any, *, implied_vol: bool = False) -> Any:
     args = {w: _column_arg(cols[req[w]]) for w in _REQUIRED[1:]}
     for w in _OPTIONAL:
         args[w] = _column_arg(cols[opt[w]]) if w in opt else None
+    kinds = _text_arg(cols[req["kind"]])
     try:
-        res = _saltus.price_columns(
-            _text_arg(cols[req["kind"]]), implied_vol=implied_vol, **args
-        )
+        try:
+            res = _saltus.price_columns(kinds, implied_vol=implied_vol, **args)
+        except TypeError:
+            # Some kind is neither str nor None (a NaN, a number): convert.
+            res = _saltus.price_columns(_clean_text(kinds), implied_vol=implied_vol, **args)
     except ValueError as e:
         raise BookError(str(e)) from None
     order = RESULT_COLUMNS[:10] + (["implied_vol"] if implied_vol else []) + ["terms", "status"]
@@ -241,7 +250,7 @@ def implied_vol(
     n = max([len(kinds)] + [len(a) for a in arrays])
     arrays = [np.ascontiguousarray(np.broadcast_to(a, (n,))) for a in arrays]
     kinds = np.broadcast_to(kinds, (n,))
-    kind_list = [None if v is None else str(v) for v in kinds.tolist()]
+    kind_list = _clean_text(kinds.tolist())
     try:
         return _saltus.implied_vol(kind_list, *arrays)
     except ValueError as e:

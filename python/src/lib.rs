@@ -13,7 +13,7 @@
 use numpy::{IntoPyArray, PyReadonlyArray1};
 use pyo3::exceptions::PyValueError;
 use pyo3::prelude::*;
-use pyo3::types::PyDict;
+use pyo3::types::{PyDict, PyList, PyString};
 use saltus::book::columns::{price_columns, Column, ColumnBook};
 use saltus::greeks::RAW_COLUMNS;
 use saltus::model::OptionKind;
@@ -89,8 +89,25 @@ fn price_columns_py<'py>(
         d.set_item("implied_vol", iv.into_pyarray(py))?;
     }
     d.set_item("terms", out.terms.into_pyarray(py))?;
-    d.set_item("status", out.status)?;
+    d.set_item("status", status_list(py, out.status)?)?;
     Ok(d)
+}
+
+/// The statuses as a Python list, every `ok` the same interned string
+/// (a million rows then make a handful of string objects, not a million).
+fn status_list(py: Python<'_>, status: Vec<String>) -> PyResult<Bound<'_, PyList>> {
+    let ok = pyo3::intern!(py, "ok");
+    let items: Vec<Bound<'_, PyAny>> = status
+        .into_iter()
+        .map(|s| {
+            if s == "ok" {
+                ok.clone().into_any()
+            } else {
+                PyString::new(py, &s).into_any()
+            }
+        })
+        .collect();
+    PyList::new(py, items)
 }
 
 /// Black-Scholes implied volatilities of prices, element by element;
@@ -107,7 +124,7 @@ fn implied_vol_py<'py>(
     expiry: PyReadonlyArray1<'py, f64>,
     rate: PyReadonlyArray1<'py, f64>,
     div_yield: PyReadonlyArray1<'py, f64>,
-) -> PyResult<(Bound<'py, numpy::PyArray1<f64>>, Vec<String>)> {
+) -> PyResult<(Bound<'py, numpy::PyArray1<f64>>, Bound<'py, PyList>)> {
     let cols = [&price, &spot, &strike, &expiry, &rate, &div_yield];
     let n = kind.len();
     let mut slices = Vec::with_capacity(cols.len());
@@ -133,7 +150,9 @@ fn implied_vol_py<'py>(
             .with_min_len(1024)
             .map(|i| {
                 let k = match kind[i].as_deref().map(str::trim) {
-                    None | Some("") => return (f64::NAN, format!("error: row {i}: kind is missing")),
+                    None | Some("") => {
+                        return (f64::NAN, format!("error: row {i}: kind is missing"))
+                    }
                     Some(t) => match t.parse::<OptionKind>() {
                         Ok(k) => k,
                         Err(()) => {
@@ -157,7 +176,7 @@ fn implied_vol_py<'py>(
             })
             .unzip::<_, _, Vec<f64>, Vec<String>>()
     });
-    Ok((vols.into_pyarray(py), status))
+    Ok((vols.into_pyarray(py), status_list(py, status)?))
 }
 
 /// The saltus version this module was built from.

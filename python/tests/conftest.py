@@ -40,7 +40,3 @@ def write_csv(path: Path, header, rows) -> Path:
     return path
 
 
-def env_threads(n: int) -> dict:
-    e = dict(os.environ)
-    e["RAYON_NUM_THREADS"] = str(n)
-    return e

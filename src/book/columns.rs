@@ -357,10 +357,7 @@ mod tests {
             out.status[1],
             "error: row 1: kind 'straddle' is not call or put"
         );
-        assert_eq!(
-            out.status[2],
-            "error: row 2: strike is not a number: 'abc'"
-        );
+        assert_eq!(out.status[2], "error: row 2: strike is not a number: 'abc'");
         assert_eq!(
             out.status[3],
             "error: row 3: strike is not a number: '32%' (write 0.32)"
