@@ -294,7 +294,7 @@ pub fn price_columns(
                 .collect()
         })
         .collect();
-    let mut values = vec![Vec::with_capacity(n); 10];
+    let mut values: Vec<Vec<f64>> = (0..10).map(|_| Vec::with_capacity(n)).collect();
     let mut iv = Vec::with_capacity(if with_implied_vol { n } else { 0 });
     let mut terms = Vec::with_capacity(n);
     let mut status = Vec::with_capacity(n);
