@@ -8,6 +8,7 @@
 use criterion::{criterion_group, criterion_main, Criterion, Throughput};
 use saltus::book::columns::{price_columns, Column, ColumnBook};
 
+#[allow(dead_code)] // the bench uses the generator only
 mod common;
 
 fn bench(c: &mut Criterion) {
