@@ -129,8 +129,33 @@ def _as_numpy(values: Any) -> np.ndarray:
     return np.asarray(values)
 
 
+def _arrow_text(values: Any) -> Any:
+    """Arrow string data as (offsets int64, data uint8, null bool) arrays,
+    handed to the library without a Python object per cell; None when
+    `values` is not an Arrow string column."""
+    mod = type(values).__module__
+    if not mod.startswith("pyarrow"):
+        return None
+    import pyarrow as pa
+
+    arr = values.combine_chunks() if isinstance(values, pa.ChunkedArray) else values
+    if pa.types.is_string(arr.type) or pa.types.is_large_string(arr.type):
+        arr = arr.cast(pa.large_string())
+        _, off, data = arr.buffers()
+        n = len(arr)
+        offsets = np.frombuffer(off, dtype=np.int64)[arr.offset: arr.offset + n + 1]
+        raw = np.frombuffer(data, dtype=np.uint8) if data is not None else np.zeros(0, np.uint8)
+        null = np.ascontiguousarray(arr.is_null().to_numpy(zero_copy_only=False), dtype=bool)
+        return (np.ascontiguousarray(offsets), raw, null)
+    return None
+
+
 def _column_arg(values: Any) -> Any:
-    """A float64 contiguous array for numbers, else a list of str | None."""
+    """A float64 contiguous array for numbers, Arrow text as buffers, else a
+    list of str | None."""
+    text = _arrow_text(values)
+    if text is not None:
+        return text
     arr = _as_numpy(values)
     if arr.dtype.kind in "fiub":
         return np.ascontiguousarray(arr, dtype=np.float64)
@@ -213,7 +238,9 @@ def price(frame: Any, *, implied_vol: bool = False) -> Any:
     args = {w: _column_arg(cols[req[w]]) for w in _REQUIRED[1:]}
     for w in _OPTIONAL:
         args[w] = _column_arg(cols[opt[w]]) if w in opt else None
-    kinds = _text_arg(cols[req["kind"]])
+    kinds = _arrow_text(cols[req["kind"]])
+    if kinds is None:
+        kinds = _text_arg(cols[req["kind"]])
     try:
         try:
             res = _saltus.price_columns(kinds, implied_vol=implied_vol, **args)

@@ -18,20 +18,33 @@ use saltus::book::columns::{price_columns, Column, ColumnBook};
 use saltus::greeks::RAW_COLUMNS;
 use saltus::model::OptionKind;
 
-/// A column as the Python layer passes it.
+/// A column as the Python layer passes it: a float64 array, Arrow-layout
+/// text as `(offsets int64, data uint8, null bool)` arrays, or a list.
 #[derive(FromPyObject)]
 enum ColArg<'py> {
     Numbers(PyReadonlyArray1<'py, f64>),
+    Utf8(
+        PyReadonlyArray1<'py, i64>,
+        PyReadonlyArray1<'py, u8>,
+        PyReadonlyArray1<'py, bool>,
+    ),
     Text(Vec<Option<String>>),
+}
+
+fn slice<'a, T: numpy::Element>(a: &'a PyReadonlyArray1<'_, T>) -> PyResult<&'a [T]> {
+    a.as_slice()
+        .map_err(|e| PyValueError::new_err(format!("array not contiguous: {e}")))
 }
 
 impl ColArg<'_> {
     fn column(&self) -> PyResult<Column<'_>> {
         Ok(match self {
-            ColArg::Numbers(a) => Column::Numbers(
-                a.as_slice()
-                    .map_err(|e| PyValueError::new_err(format!("array not contiguous: {e}")))?,
-            ),
+            ColArg::Numbers(a) => Column::Numbers(slice(a)?),
+            ColArg::Utf8(offsets, data, null) => Column::Utf8 {
+                offsets: slice(offsets)?,
+                data: slice(data)?,
+                null: slice(null)?,
+            },
             ColArg::Text(v) => Column::Text(v),
         })
     }
@@ -50,7 +63,7 @@ fn opt_column<'a>(c: &'a Option<ColArg<'_>>) -> PyResult<Option<Column<'a>>> {
 #[allow(clippy::too_many_arguments)]
 fn price_columns_py<'py>(
     py: Python<'py>,
-    kind: Vec<Option<String>>,
+    kind: ColArg<'py>,
     spot: ColArg<'py>,
     strike: ColArg<'py>,
     expiry: ColArg<'py>,
@@ -65,7 +78,7 @@ fn price_columns_py<'py>(
     implied_vol: bool,
 ) -> PyResult<Bound<'py, PyDict>> {
     let book = ColumnBook {
-        kind: &kind,
+        kind: kind.column()?,
         spot: spot.column()?,
         strike: strike.column()?,
         expiry: expiry.column()?,

@@ -18,12 +18,12 @@
 //! joined in chunk order; every row is a pure function of its inputs, so the
 //! result does not depend on the thread count or on how a book is split.
 
-use super::reader::general_number;
+use super::reader::{general_number, plain_decimal};
 use super::writer::non_finite_message;
 use crate::engines::series;
 use crate::greeks::RAW_COLUMNS;
 use crate::market::implied_vol::implied_vol;
-use crate::model::{Contract, JumpParams, OptionKind};
+use crate::model::{Contract, JumpParams, OptionKind, Short};
 use rayon::prelude::*;
 
 /// Rows per unit of parallel work.
@@ -36,23 +36,57 @@ pub enum Column<'a> {
     Numbers(&'a [f64]),
     /// Text as a CSV field holds it; `None` is an empty cell.
     Text(&'a [Option<String>]),
+    /// Text in Arrow's layout (no object per cell): field `i` is
+    /// `data[offsets[i]..offsets[i + 1]]`, empty where `null[i]`.
+    Utf8 {
+        /// `len + 1` byte offsets into `data`.
+        offsets: &'a [i64],
+        /// The UTF-8 bytes of every field.
+        data: &'a [u8],
+        /// One flag per row: the cell is empty (null).
+        null: &'a [bool],
+    },
 }
 
-impl Column<'_> {
+impl<'a> Column<'a> {
     fn len(&self) -> usize {
         match self {
             Column::Numbers(v) => v.len(),
             Column::Text(v) => v.len(),
+            Column::Utf8 { null, .. } => null.len(),
         }
+    }
+
+    /// Row `i` as text, surrounding ASCII spaces trimmed; `None` for an
+    /// empty cell, a number, or offsets that do not fit the data.
+    fn text(&self, i: usize) -> Option<&'a [u8]> {
+        let t = match *self {
+            Column::Numbers(_) => return None,
+            Column::Text(v) => v[i].as_deref()?.as_bytes(),
+            Column::Utf8 {
+                offsets,
+                data,
+                null,
+            } => {
+                if null[i] {
+                    return None;
+                }
+                let (a, b) = (offsets[i], offsets[i + 1]);
+                data.get(usize::try_from(a).ok()?..usize::try_from(b).ok()?)?
+            }
+        };
+        Some(t.trim_ascii()).filter(|t| !t.is_empty())
     }
 
     /// The value of row `i`: `Ok(None)` for an empty cell.
     fn get(&self, i: usize, name: &str) -> Result<Option<f64>, String> {
         match self {
             Column::Numbers(v) => Ok(Some(v[i]).filter(|x| !x.is_nan())),
-            Column::Text(v) => match v[i].as_deref().map(str::trim) {
-                None | Some("") => Ok(None),
-                Some(t) => general_number(t.as_bytes(), name).map(Some),
+            _ => match self.text(i) {
+                None => Ok(None),
+                Some(t) => plain_decimal(t)
+                    .map_or_else(|| general_number(t, name), Ok)
+                    .map(Some),
             },
         }
     }
@@ -73,8 +107,8 @@ fn optional(col: &Option<Column<'_>>, i: usize, name: &str, default: f64) -> Res
 /// A book as columns. Every column has the same length.
 #[derive(Debug, Clone)]
 pub struct ColumnBook<'a> {
-    /// `call` or `put`, any case, surrounding spaces ignored.
-    pub kind: &'a [Option<String>],
+    /// `call` or `put`, any case, surrounding spaces ignored (a text column).
+    pub kind: Column<'a>,
     /// Spot price.
     pub spot: Column<'a>,
     /// Strike.
@@ -113,6 +147,12 @@ pub enum ColumnError {
         /// The length of `kind`.
         expected: usize,
     },
+    /// Text buffers whose offsets do not give one field per row.
+    #[error("column {name} has malformed text buffers (offsets must number rows + 1)")]
+    Malformed {
+        /// The column.
+        name: &'static str,
+    },
 }
 
 impl<'a> ColumnBook<'a> {
@@ -123,11 +163,12 @@ impl<'a> ColumnBook<'a> {
 
     /// True for a book without rows.
     pub fn is_empty(&self) -> bool {
-        self.kind.is_empty()
+        self.len() == 0
     }
 
     fn named(&self) -> Vec<(&'static str, Column<'a>)> {
         let mut v = vec![
+            ("kind", self.kind),
             ("spot", self.spot),
             ("strike", self.strike),
             ("expiry", self.expiry),
@@ -156,6 +197,11 @@ impl<'a> ColumnBook<'a> {
     pub fn check(&self) -> Result<(), ColumnError> {
         let expected = self.len();
         for (name, c) in self.named() {
+            if let Column::Utf8 { offsets, null, .. } = c {
+                if offsets.len() != null.len() + 1 {
+                    return Err(ColumnError::Malformed { name });
+                }
+            }
             if c.len() != expected {
                 return Err(ColumnError::Length {
                     name,
@@ -170,11 +216,16 @@ impl<'a> ColumnBook<'a> {
     /// Row `i` as a validated contract, or the message of its first problem
     /// (the same words the CSV reader uses, without the line).
     pub fn contract(&self, i: usize) -> Result<Contract, String> {
-        let kind = match self.kind[i].as_deref().map(str::trim) {
-            None | Some("") => return Err("kind is missing".into()),
-            Some(t) => t
-                .parse::<OptionKind>()
-                .map_err(|()| format!("kind '{}' is not call or put", t.escape_debug()))?,
+        let kind = match (self.kind, self.kind.text(i)) {
+            (Column::Numbers(v), _) if !v[i].is_nan() => {
+                return Err(format!("kind '{}' is not call or put", Short(v[i])))
+            }
+            (_, None) => return Err("kind is missing".into()),
+            (_, Some(t)) => {
+                let t = String::from_utf8_lossy(t);
+                t.parse::<OptionKind>()
+                    .map_err(|()| format!("kind '{}' is not call or put", t.escape_debug()))?
+            }
         };
         let spot = self.spot.required(i, "spot")?;
         let strike = self.strike.required(i, "strike")?;
@@ -338,7 +389,7 @@ mod tests {
         let mu = [-0.1; 4];
         let dl = [0.15; 4];
         let book = ColumnBook {
-            kind: &kind,
+            kind: Column::Text(&kind),
             spot: Column::Numbers(&ones),
             strike: Column::Text(&strike_text),
             expiry: Column::Numbers(&t),
@@ -374,7 +425,7 @@ mod tests {
         let x = [f64::NAN];
         let one = [1.0];
         let book = ColumnBook {
-            kind: &kind,
+            kind: Column::Text(&kind),
             spot: Column::Numbers(&one),
             strike: Column::Numbers(&one),
             expiry: Column::Numbers(&one),
@@ -389,6 +440,18 @@ mod tests {
         };
         let out = price_columns(&book, false).unwrap();
         assert_eq!(out.status[0], "error: row 0: rate is missing");
+        // Arrow-layout text reads like a list of strings.
+        let data = b"put 0.5 x";
+        let offsets = [0i64, 4, 8, 9];
+        let null = [false, false, true];
+        let col = Column::Utf8 {
+            offsets: &offsets,
+            data,
+            null: &null,
+        };
+        assert_eq!(col.get(1, "strike"), Ok(Some(0.5)));
+        assert_eq!(col.get(2, "strike"), Ok(None));
+        assert_eq!(col.text(0), Some(&b"put"[..]));
         let short = [1.0, 2.0];
         let book = ColumnBook {
             spot: Column::Numbers(&short),
