@@ -30,7 +30,7 @@ fn bench(c: &mut Criterion) {
     let rate = vec![0.02; n];
     let div = vec![0.01; n];
     let book = ColumnBook {
-        kind: &kind,
+        kind: Column::Text(&kind),
         spot: Column::Numbers(&spot),
         strike: Column::Numbers(&strike),
         expiry: Column::Numbers(&expiry),
