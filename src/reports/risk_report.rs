@@ -542,7 +542,7 @@ fn listed_table<T>(
 ) -> String {
     let mut t = String::from("<table><thead><tr>");
     for h in headers {
-        let _ = write!(t, "<th>{h}</th>");
+        let _ = write!(t, "<th class=\"text\">{h}</th>");
     }
     t.push_str("</tr></thead><tbody>");
     for item in items {
@@ -725,6 +725,7 @@ fn user_scenarios_html(r: &RiskReport, meta: &ReportMeta) -> String {
     }
     let mut t = String::from("<table><thead><tr>");
     t.push_str(&th("scenario", ""));
+    t.push_str("<th class=\"text\">shocks</th>");
     for g in &groups {
         let (name, unit) = match g.underlying {
             Some(_) => (display_name(g), "P&L, ccy".to_string()),
@@ -734,7 +735,12 @@ fn user_scenarios_html(r: &RiskReport, meta: &ReportMeta) -> String {
     }
     t.push_str("<th class=\"text\">status</th></tr></thead><tbody>");
     for (k, u) in r.spec.user.iter().enumerate() {
-        let _ = write!(t, "<tr><td>{}</td>", esc(&u.name));
+        let _ = write!(
+            t,
+            "<tr><td>{}</td><td class=\"text\">{}</td>",
+            esc(&u.name),
+            esc(&describe(u))
+        );
         for g in &groups {
             let c = &g.scenarios.user[k];
             let v = if u.is_valid() {
@@ -765,6 +771,51 @@ fn user_scenarios_html(r: &RiskReport, meta: &ReportMeta) -> String {
     t.push_str("</tbody></table>");
     s.push_str(&scroll(&t));
     s
+}
+
+/// What a named scenario does, row by row: `* spot −12%, vol +6 pts;
+/// ZEPHYRA-IDX spot −15%, vol +8 pts`.
+fn describe(u: &crate::reports::user_scenarios::UserScenario) -> String {
+    let one = |who: &str, r: &crate::reports::user_scenarios::ShockRow| {
+        let mut parts = Vec::new();
+        if r.spot_shock_pct != 0.0 {
+            parts.push(format!("spot {}%", signed_short(r.spot_shock_pct)));
+        }
+        if r.vol_shock_pts != 0.0 {
+            parts.push(format!("vol {} pts", signed_short(r.vol_shock_pts)));
+        }
+        let k = &r.shock;
+        if k.jump_rate_mult != 1.0 {
+            let m = signed_short(k.jump_rate_mult);
+            parts.push(format!("jump rate \u{00d7}{}", m.trim_start_matches('+')));
+        }
+        if k.jump_mean_shift != 0.0 {
+            parts.push(format!("jump mean {}", signed_short(k.jump_mean_shift)));
+        }
+        if k.jump_vol_shift != 0.0 {
+            parts.push(format!("jump vol {}", signed_short(k.jump_vol_shift)));
+        }
+        if k.rate_shift != 0.0 {
+            parts.push(format!("rate {} bp", signed_short(k.rate_shift * 1e4)));
+        }
+        if parts.is_empty() {
+            parts.push("no change".to_string());
+        }
+        format!("{who}: {}", parts.join(", "))
+    };
+    let mut rows: Vec<String> = Vec::new();
+    if let Some(r) = &u.all {
+        let who = if u.by_underlying.is_empty() {
+            "every underlying"
+        } else {
+            "every other underlying"
+        };
+        rows.push(one(who, r));
+    }
+    for (name, r) in &u.by_underlying {
+        rows.push(one(name, r));
+    }
+    rows.join("; ")
 }
 
 /// Underlyings with a heat map of their own (the book always has one).
@@ -836,6 +887,10 @@ fn spot_chart(
 /// The book's headline figures: value, worst and best grid cell, worst jump.
 fn at_a_glance(r: &RiskReport) -> String {
     let (e, s) = &r.book;
+    if e.positions == 0 {
+        return "<p class=\"warn\">No position of the book could be priced: every figure below is 0.</p>"
+            .to_string();
+    }
     let mut worst: Option<(f64, usize, usize)> = None;
     let mut best: Option<(f64, usize, usize)> = None;
     for (i, row) in s.grid.iter().enumerate() {
@@ -974,10 +1029,21 @@ fn html(r: &RiskReport, meta: &ReportMeta) -> String {
         .collect();
     let key = colour_key(scale, "P&L (ccy)", "one scale, every grid");
     for g in &mapped {
-        let title = match g.underlying {
-            Some(_) => format!("P&L by full revaluation: {}", display_name(g)),
-            None => "P&L by full revaluation: book".to_string(),
-        };
+        let largest = g
+            .scenarios
+            .grid
+            .iter()
+            .flatten()
+            .filter(|c| c.pnl.is_finite())
+            .fold(0.0f64, |a, c| a.max(c.pnl.abs()));
+        let title = format!(
+            "P&L by full revaluation: {} (largest |P&L| {})",
+            match g.underlying {
+                Some(_) => display_name(g),
+                None => "book".to_string(),
+            },
+            compact(largest)
+        );
         let map = heat_map(&HeatMap {
             title: &title,
             x_labels: &x_labels,
