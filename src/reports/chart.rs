@@ -495,6 +495,9 @@ pub fn colour_key(scale: f64, unit: &str, note: &str) -> String {
         (-0.5, ""),
         (-1.0, " loss"),
     ] {
+        if scale <= 0.0 && t != 0.0 {
+            continue; // every cell is 0: one label
+        }
         let y = bar_top + (1.0 - t) / 2.0 * bar_h;
         let v = if scale > 0.0 { t * scale } else { 0.0 };
         let _ = write!(
