@@ -66,7 +66,7 @@ pub fn compact_sig(x: f64, d: i32) -> String {
         return "0".to_string();
     }
     let a = r.abs();
-    let body = if a >= 1e15 || a < 1e-3 {
+    let body = if !(1e-3..1e15).contains(&a) {
         let s = format!("{:.*e}", (d - 1).max(0) as usize, a);
         s.replace("e-", &format!("e{MINUS}"))
     } else if let Some((p, suffix)) = SUFFIXES.iter().find(|(p, _)| a >= *p) {
