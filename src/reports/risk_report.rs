@@ -978,27 +978,28 @@ fn html(r: &RiskReport, meta: &ReportMeta) -> String {
                 .collect::<Vec<f64>>()
         }
     };
-    let delta_chart = spot_chart(
-        "Cash delta against spot shock",
-        "cash delta (ccy)",
-        xs,
-        &lines,
-        &curve(|p| p.delta_cash),
-    );
-    let gamma_chart = spot_chart(
-        "Cash gamma against spot shock",
-        "cash gamma (ccy per 1% move)",
-        xs,
-        &lines,
-        &curve(|p| p.gamma_cash_1pct),
-    );
-    let vega_chart = spot_chart(
-        "Vega against spot shock",
-        "vega (ccy per vol point)",
-        xs,
-        &lines,
-        &curve(|p| p.vega_1pt),
-    );
+    let greek_charts: [(&str, &str, fn(&CurvePoint) -> f64); 3] = [
+        ("Cash delta against spot shock", "cash delta (ccy)", |p| {
+            p.delta_cash
+        }),
+        (
+            "Cash gamma against spot shock",
+            "cash gamma (ccy per 1% move)",
+            |p| p.gamma_cash_1pct,
+        ),
+        ("Vega against spot shock", "vega (ccy per vol point)", |p| {
+            p.vega_1pt
+        }),
+    ];
+    let greek_charts: String = greek_charts
+        .iter()
+        .map(|(title, y, f)| {
+            format!(
+                "<figure>{}</figure>",
+                spot_chart(title, y, xs, &lines, &curve(*f))
+            )
+        })
+        .collect();
     let mut heat_maps = String::new();
     if n_underlyings > MAX_HEAT_MAPS || n_underlyings > MAX_LINES {
         let _ = write!(
@@ -1150,9 +1151,7 @@ fn html(r: &RiskReport, meta: &ReportMeta) -> String {
 {user}
 <h2>Greeks against spot</h2>
 <p class="note">Vol unchanged; each curve is the sum over the underlying's positions at the shocked spot; the thick black line is the book.</p>
-<figure>{delta_chart}</figure>
-<figure>{gamma_chart}</figure>
-<figure>{vega_chart}</figure>"#,
+{greek_charts}"#,
         header = facts(&settings),
         glance = at_a_glance(r),
         failed = failed_rows_html(r),
