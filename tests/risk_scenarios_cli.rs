@@ -269,3 +269,55 @@ fn issue11_demo_scenario_file_runs() {
         "six scenarios, three underlyings and the book"
     );
 }
+
+#[test]
+fn issue11_jump_shock_list_gives_every_underlying_each_jump_in_percent() {
+    // An instantaneous jump of x% with everything else unchanged is the grid
+    // point (spot x%, vol 0): the same revaluation, so the same digits.
+    let dir = tempfile::tempdir().unwrap();
+    let out = dir.path().join("out");
+    let o = saltus()
+        .arg("risk")
+        .arg(demo_book())
+        .args(["--jump-shock", "-10,+5", "-o"])
+        .arg(&out)
+        .output()
+        .unwrap();
+    assert_eq!(
+        o.status.code(),
+        Some(1),
+        "{}",
+        String::from_utf8_lossy(&o.stderr)
+    );
+    let grid = grid_cells(&out);
+    let rows = csv_file_rows(&out.join("jump_scenarios.csv"));
+    assert_eq!(
+        &rows[0][..4],
+        ["underlying", "scenario", "jump_size_pct", "pnl"]
+    );
+    let mut given = 0;
+    for r in &rows[1..] {
+        match r[1].as_str() {
+            "given_jump" => {
+                let spot = r[2].clone();
+                assert!(spot == "-10.0" || spot == "5.0", "{r:?}");
+                assert_eq!(
+                    r[3],
+                    grid[&(r[0].clone(), spot, "0.0".to_string())],
+                    "{r:?}"
+                );
+                given += 1;
+            }
+            "model_mean_jump" if r[0] == "(book)" => {
+                assert!(r[2].is_empty(), "no one size for the whole book: {r:?}");
+                assert_eq!(r[6], "ok");
+            }
+            "model_mean_jump" => {
+                let k: f64 = r[2].parse().unwrap();
+                assert!(k < 0.0 && k > -100.0, "the demo's jumps are down: {r:?}");
+            }
+            other => panic!("unexpected scenario {other}"),
+        }
+    }
+    assert_eq!(given, 2 * 4, "two jumps, three underlyings and the book");
+}
