@@ -945,6 +945,9 @@ fn shock_list(xs: &[f64], unit: &str) -> String {
     format!("{} {unit}", v.join(", "))
 }
 
+/// A Greek-against-spot chart: title, y-axis description, the value.
+type GreekChart = (&'static str, &'static str, fn(&CurvePoint) -> f64);
+
 /// The page.
 fn html(r: &RiskReport, meta: &ReportMeta) -> String {
     let xs = &r.spec.spot_shocks_pct;
@@ -978,7 +981,7 @@ fn html(r: &RiskReport, meta: &ReportMeta) -> String {
                 .collect::<Vec<f64>>()
         }
     };
-    let greek_charts: [(&str, &str, fn(&CurvePoint) -> f64); 3] = [
+    let greek_charts: [GreekChart; 3] = [
         ("Cash delta against spot shock", "cash delta (ccy)", |p| {
             p.delta_cash
         }),
