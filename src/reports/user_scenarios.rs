@@ -132,19 +132,10 @@ impl ScenarioFile {
             .byte_headers()
             .map_err(|e| format!("{source}: {e}"))?
             .clone();
-        let names: Vec<String> = headers
-            .iter()
-            .map(|h| String::from_utf8_lossy(h).trim().to_ascii_lowercase())
-            .collect();
+        let names = crate::book::header::names(&headers);
         let mut idx: [Option<usize>; 8] = [None; 8];
         for (slot, col) in idx.iter_mut().zip(COLUMNS) {
-            let mut hits = names.iter().enumerate().filter(|(_, n)| *n == col);
-            *slot = hits.next().map(|(i, _)| i);
-            if hits.next().is_some() {
-                return Err(format!(
-                    "{source}: column '{col}' appears more than once in the header"
-                ));
-            }
+            *slot = crate::book::header::find(&names, col, source)?;
         }
         let missing: Vec<&str> = COLUMNS[..REQUIRED]
             .iter()
