@@ -167,7 +167,9 @@ fn zero_diffusion_rows_match_the_mpmath_jump_count_sum() {
             fourier::price(&c).unwrap_or_else(|e| panic!("{} {}: {e}", row["case"], row["kind"]));
         let err = (f.price - want).abs();
         let rel = err / want;
-        worst = worst.max(rel);
+        if want > 1e-13 * c.spot {
+            worst = worst.max(rel);
+        }
         assert!(
             rel <= 1e-10 || err <= 1e-13 * c.spot,
             "{} {}: {} vs {want} (rel {rel:e})",
@@ -190,7 +192,7 @@ fn zero_diffusion_rows_match_the_mpmath_jump_count_sum() {
             f.error_estimate
         );
     }
-    eprintln!("worst zero-diffusion relative error: {worst:e}");
+    eprintln!("worst zero-diffusion relative error (prices above 1e-13 spot): {worst:e}");
 }
 
 #[test]
