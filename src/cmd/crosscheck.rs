@@ -424,7 +424,7 @@ fn print_summary(s: &CheckAccumulator, cfg: &CheckConfig) {
     if !s.worst_fourier.is_empty() {
         eprintln!(
             "  largest Fourier gaps  {}",
-            fmt_list(&s.worst_fourier, |g| format!("{g:+.1e} rel"))
+            fmt_list(&s.worst_fourier, |g| format!("{g:+.2e} x tolerance"))
         );
     }
     for (outcome, count, name) in [

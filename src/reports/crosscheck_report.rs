@@ -13,7 +13,7 @@
 //! charts are drawn by `plotters` here, in the palette and style of the
 //! risk page ([`super::html`]).
 
-use super::crosscheck::Outcome;
+use super::crosscheck::{Outcome, ABS_FLOOR};
 use super::crosscheck_summary::{
     CheckAccumulator, GapBin, COVERAGE_EXPIRY, COVERAGE_MONEYNESS, EXPIRY_BINS, KEEP_FLAGGED,
     MONEYNESS_BINS, Z_BIN, Z_RANGE,
@@ -216,17 +216,17 @@ fn z_quantile_plot(a: &CheckAccumulator, z_max: f64) -> String {
     svg
 }
 
-/// Smallest relative gap drawn (a gap of exactly 0 is drawn here).
-const GAP_FLOOR: f64 = 1e-18;
+/// Smallest gap drawn, in tolerance units (a gap of exactly 0 is drawn here).
+const GAP_FLOOR: f64 = 1e-8;
 
-/// Largest relative Fourier gap and error estimate per bin, on a log scale,
-/// against the tolerance.
+/// Largest Fourier gap and error estimate per bin in units of the row's
+/// tolerance, on a log scale, against the tolerance (1).
 fn gap_chart(
     title: &str,
     x_desc: &str,
     bins: &[GapBin],
     (lo, width, _): (f64, f64, usize),
-    tol: f64,
+    rel_tol: f64,
 ) -> String {
     let centre = |i: usize| lo + width * (i as f64 + 0.5);
     let lg = |x: f64| x.max(GAP_FLOOR).log10();
@@ -234,13 +234,13 @@ fn gap_chart(
         .iter()
         .enumerate()
         .filter(|(_, b)| b.rows > 0)
-        .map(|(i, b)| (centre(i), lg(b.max_gap_rel)))
+        .map(|(i, b)| (centre(i), lg(b.max_gap_tol)))
         .collect();
     let ests: Vec<(f64, f64)> = bins
         .iter()
         .enumerate()
         .filter(|(_, b)| b.rows > 0)
-        .map(|(i, b)| (centre(i), lg(b.max_estimate_rel)))
+        .map(|(i, b)| (centre(i), lg(b.max_estimate_tol)))
         .collect();
     let unresolved: Vec<(f64, u64)> = bins
         .iter()
@@ -248,14 +248,8 @@ fn gap_chart(
         .filter(|(_, b)| b.unresolved > 0)
         .map(|(i, b)| (centre(i), b.unresolved))
         .collect();
-    let y_hi = gaps
-        .iter()
-        .chain(&ests)
-        .map(|p| p.1)
-        .fold(lg(tol), f64::max)
-        .max(-2.0)
-        + 1.0;
-    let y_lo = -18.5;
+    let y_hi = gaps.iter().chain(&ests).map(|p| p.1).fold(0.0, f64::max) + 1.0;
+    let y_lo = GAP_FLOOR.log10() - 0.5;
     let x_hi = lo + width * bins.len() as f64;
     let mut svg = String::new();
     {
@@ -271,7 +265,7 @@ fn gap_chart(
             let _ = chart
                 .configure_mesh()
                 .x_desc(x_desc)
-                .y_desc("log10 of |gap| / price_series")
+                .y_desc("log10 of |gap| / tolerance")
                 .light_line_style(GREY)
                 .draw();
             let tol_style = ShapeStyle {
@@ -279,11 +273,11 @@ fn gap_chart(
                 filled: false,
                 stroke_width: 2,
             };
-            if let Ok(s) =
-                chart.draw_series(LineSeries::new([(lo, lg(tol)), (x_hi, lg(tol))], tol_style))
-            {
-                s.label(format!("tolerance {tol:e} (relative)"))
-                    .legend(move |(x, y)| PathElement::new(vec![(x, y), (x + 18, y)], tol_style));
+            if let Ok(s) = chart.draw_series(LineSeries::new([(lo, 0.0), (x_hi, 0.0)], tol_style)) {
+                s.label(format!(
+                    "tolerance: {rel_tol:e} x price_series, at least {ABS_FLOOR:e} x spot"
+                ))
+                .legend(move |(x, y)| PathElement::new(vec![(x, y), (x + 18, y)], tol_style));
             }
             let dot = PALETTE[0].filled();
             if let Ok(s) = chart.draw_series(gaps.iter().map(|&p| Circle::new(p, 4, dot))) {
@@ -519,7 +513,7 @@ figure {{ margin: 12px 0; }}
 <tr><td>Monte Carlo paths in all</td><td>{paths}</td></tr>
 <tr><td>Monte Carlo estimators</td><td class="left">{methods}</td></tr>
 <tr><td>largest |z|</td><td class="left">{worst_z}</td></tr>
-<tr><td>largest relative Fourier gaps</td><td class="left">{worst_f}</td></tr>
+<tr><td>largest Fourier gaps (in tolerances)</td><td class="left">{worst_f}</td></tr>
 </table>
 {failed}
 <h2>Monte Carlo z-scores</h2>
@@ -530,7 +524,7 @@ figure {{ margin: 12px 0; }}
 <p class="note">Share of rows whose Monte Carlo 95% interval holds the series price, by regime; about 95% each for honest error bars. A share outside 0.95 &plusmn; 3.29&radic;(0.95&middot;0.05/n) (where a correct engine falls once in a thousand regimes) is marked in red.</p>
 {coverage}
 <h2>Fourier gap against moneyness and expiry</h2>
-<p class="note">The largest |price_fourier &minus; price_series| / price_series in each bin (rows with a positive series price; a gap of 0 is drawn at 10<sup>&minus;18</sup>), with the Fourier engine's own largest error estimate. The end bins take every row beyond them. Rows at expiry are left out.</p>
+<p class="note">The largest |price_fourier &minus; price_series| in each bin, in units of the row's tolerance (max({rel_tol:e} &times; price_series, {floor:e} &times; spot): a point above 1 is a disagreement; a gap of 0 is drawn at 10<sup>&minus;8</sup>), with the Fourier engine's own largest error estimate in the same units (above 1: the row is inconclusive). The end bins take every row beyond them. Rows at expiry are left out.</p>
 <figure>{gap_m}</figure>
 <figure>{gap_t}</figure>
 <h2>Flagged rows ({n_flag})</h2>
@@ -548,7 +542,9 @@ figure {{ margin: 12px 0; }}
         rows_failed = s.rows_failed,
         paths = a.mc_paths,
         worst_z = worst(&a.worst_z, &|z| format!("{z:+.2}")),
-        worst_f = worst(&a.worst_fourier, &|g| format!("{g:+.1e}")),
+        worst_f = worst(&a.worst_fourier, &|g| format!("{g:+.2e}")),
+        rel_tol = s.fourier_rel_tol,
+        floor = s.abs_floor,
         zn = a.z_count,
         zmean = a.z_mean(),
         zsd = a.z_sd(),

@@ -86,18 +86,20 @@ pub struct GapBin {
     pub rows: u64,
     /// Rows without a conclusive Fourier check (failed, or its estimate above tolerance).
     pub unresolved: u64,
-    /// Largest `|fourier_gap| / price_series` (over rows with a positive price).
-    pub max_gap_rel: f64,
-    /// Largest Fourier error estimate relative to the series price.
-    pub max_estimate_rel: f64,
+    /// Largest `|fourier_gap| / tolerance` (the row's Fourier tolerance,
+    /// `max(fourier_rel_tol x price_series, ABS_FLOOR x spot)`: above 1 the
+    /// row disagrees).
+    pub max_gap_tol: f64,
+    /// Largest Fourier error estimate in the same units.
+    pub max_estimate_tol: f64,
 }
 
 impl GapBin {
     fn merge(&mut self, o: &GapBin) {
         self.rows += o.rows;
         self.unresolved += o.unresolved;
-        self.max_gap_rel = self.max_gap_rel.max(o.max_gap_rel);
-        self.max_estimate_rel = self.max_estimate_rel.max(o.max_estimate_rel);
+        self.max_gap_tol = self.max_gap_tol.max(o.max_gap_tol);
+        self.max_estimate_tol = self.max_estimate_tol.max(o.max_estimate_tol);
     }
 }
 
@@ -137,7 +139,7 @@ pub struct CheckAccumulator {
     pub z_outside: (u64, u64),
     /// Largest `|z|`.
     pub worst_z: Vec<Extreme>,
-    /// Largest relative Fourier gaps.
+    /// Largest Fourier gaps in units of the row's tolerance (signed).
     pub worst_fourier: Vec<Extreme>,
     /// Fourier gaps by `ln(K/F)` bin ([`MONEYNESS_BINS`]; the end bins take everything beyond).
     pub gap_by_moneyness: Vec<GapBin>,
@@ -252,26 +254,25 @@ impl CheckAccumulator {
         }
         let s = r.price_series;
         let gap_rel = r.fourier_gap.filter(|_| s > 0.0).map(|g| g / s);
+        // The same tolerance as the verdict rule (reports::crosscheck).
+        let tol = (cfg.fourier_rel_tol * s).max(ABS_FLOOR * c.spot);
         if c.expiry > 0.0 {
-            let tol = (cfg.fourier_rel_tol * s).max(ABS_FLOOR * c.spot);
             let mut bin = GapBin::default();
-            match r.fourier {
-                Some(f) => {
+            match (r.fourier, r.fourier_gap) {
+                (Some(f), Some(g)) => {
                     bin.rows = 1;
                     if f.error_estimate > tol {
                         bin.unresolved = 1;
                     }
-                    if let Some(g) = gap_rel {
-                        bin.max_gap_rel = g.abs();
-                        bin.max_estimate_rel = f.error_estimate / s;
-                    }
+                    bin.max_gap_tol = g.abs() / tol;
+                    bin.max_estimate_tol = f.error_estimate / tol;
                 }
-                None => bin.unresolved = 1,
+                _ => bin.unresolved = 1,
             }
             self.gap_by_moneyness[bin_of(m, MONEYNESS_BINS)].merge(&bin);
             self.gap_by_expiry[bin_of(c.expiry.log10(), EXPIRY_BINS)].merge(&bin);
         }
-        if let Some(g) = gap_rel {
+        if let Some(g) = r.fourier_gap.map(|g| g / tol).filter(|x| x.is_finite()) {
             self.worst_fourier.push((line, id.to_string(), g));
             keep_top(&mut self.worst_fourier);
         }
