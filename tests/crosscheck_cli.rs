@@ -245,7 +245,10 @@ fn issue10_fail_on_inconclusive_counts_inconclusive_rows_toward_the_exit_code() 
     let mixed = book(&[ROWS[0], &lattice_row("L", 95)]);
     let (code, out, err) = run_with(&mixed, &[]);
     assert_eq!(code, Some(0), "{err}");
-    assert!(out.contains("inconclusive: fourier not applicable"), "{out}");
+    assert!(
+        out.contains("inconclusive: fourier not applicable"),
+        "{out}"
+    );
     let (code, _, err) = run_with(&mixed, &["--fail-on-inconclusive"]);
     assert_eq!(code, Some(1), "{err}");
     assert!(
@@ -294,13 +297,12 @@ fn issue10_summary_names_flagged_rows_by_input_line_with_reasons_and_units() {
 #[test]
 fn issue10_summary_bounds_the_listed_rows_with_and_n_more() {
     // Twelve inconclusive rows: the first ten are listed, then "and 2 more".
-    let rows: Vec<String> = (0..12).map(|i| lattice_row(&format!("L{i}"), 80 + i)).collect();
+    let rows: Vec<String> = (0..12)
+        .map(|i| lattice_row(&format!("L{i}"), 80 + i))
+        .collect();
     let refs: Vec<&str> = rows.iter().map(|s| s.as_str()).collect();
     let (_, _, err) = run_with(&book(&refs), &[]);
-    let listed = err
-        .lines()
-        .filter(|l| l.starts_with("    line "))
-        .count();
+    let listed = err.lines().filter(|l| l.starts_with("    line ")).count();
     assert_eq!(listed, 10, "{err}");
     assert!(err.contains("    line 11 (id L9): "), "{err}");
     assert!(!err.contains("(id L10)"), "{err}");
@@ -366,7 +368,10 @@ fn issue10_report_page_is_self_contained_and_has_every_section() {
     assert!(html.contains(env!("CARGO_PKG_VERSION")));
     assert!(html.contains("<td>input file</td><td class=\"left\">-</td>"));
     // No URL but the SVG namespace: nothing is fetched from the network.
-    assert!(html.replace("http://www.w3.org/2000/svg", "").find("http").is_none());
+    assert!(html
+        .replace("http://www.w3.org/2000/svg", "")
+        .find("http")
+        .is_none());
     assert!(!html.contains("<script") && !html.contains("src="));
     let svgs = svgs(&html);
     assert_eq!(svgs.len(), 4, "histogram, quantile plot, two gap charts");
@@ -384,10 +389,16 @@ fn issue10_report_page_is_self_contained_and_has_every_section() {
     assert!(hist
         .descendants()
         .any(|n| n.text().map(str::trim) == Some("standard normal density")));
-    let bars = hist.descendants().filter(|n| n.has_tag_name("rect")).count();
+    let bars = hist
+        .descendants()
+        .filter(|n| n.has_tag_name("rect"))
+        .count();
     assert!(bars >= 40, "a bar per bin, found {bars}");
     let qq = roxmltree::Document::parse(svgs[1]).unwrap();
-    let dots = qq.descendants().filter(|n| n.has_tag_name("circle")).count();
+    let dots = qq
+        .descendants()
+        .filter(|n| n.has_tag_name("circle"))
+        .count();
     assert!(dots >= 5, "a point per occupied quantile, found {dots}");
 }
 

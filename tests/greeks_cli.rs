@@ -74,7 +74,9 @@ fn issue10_undefined_finite_differences_are_n_a_with_a_reason_not_a_flag() {
             }
         }
         assert!(rows[0][col(&h, "fd_note")].contains("expired row at the strike"));
-        assert!(rows[1][col(&h, "fd_note")].contains("zero variance with the forward at the strike"));
+        assert!(
+            rows[1][col(&h, "fd_note")].contains("zero variance with the forward at the strike")
+        );
         assert!(rows[2][col(&h, "fd_note")].contains("point of the terminal law at the strike"));
         assert!(err.contains("0 rows with Greeks flagged"), "{err}");
     }
@@ -110,7 +112,10 @@ fn issue10_paths_below_the_monte_carlo_minimum_are_warned_not_changed_silently()
     // (src/engines/monte_carlo.rs, BLOCK_PAIRS): --paths 4000 simulates
     // 16384 paths per repricing, and says so.
     let book = format!("{HEADER}\na,call,100,100,0.5,0.03,0,0.2,0.5,-0.1,0.15\n");
-    let (_, _, _, err) = run(&book, &["--engine", "mc", "--method", "fd", "--paths", "4000"]);
+    let (_, _, _, err) = run(
+        &book,
+        &["--engine", "mc", "--method", "fd", "--paths", "4000"],
+    );
     assert!(
         err.contains(
             "saltus: warning: --paths 4000 is below the Monte Carlo engine's minimum of one block \
@@ -118,7 +123,10 @@ fn issue10_paths_below_the_monte_carlo_minimum_are_warned_not_changed_silently()
         ),
         "{err}"
     );
-    let (_, _, _, err) = run(&book, &["--engine", "mc", "--method", "fd", "--paths", "32768"]);
+    let (_, _, _, err) = run(
+        &book,
+        &["--engine", "mc", "--method", "fd", "--paths", "32768"],
+    );
     assert!(!err.contains("warning"), "a whole number of blocks: {err}");
     // The series engine has no paths: no warning.
     let (_, _, _, err) = run(&book, &["--paths", "4000"]);

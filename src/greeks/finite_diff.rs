@@ -479,7 +479,8 @@ pub fn greeks(
 pub fn undefined_reason(c: &Contract, cfg: &FdConfig) -> Option<String> {
     let j = &c.jumps;
     let t = c.expiry;
-    let point_mass = t == 0.0 || (c.vol == 0.0 && (j.rate == 0.0 || (j.mean == 0.0 && j.vol == 0.0)));
+    let point_mass =
+        t == 0.0 || (c.vol == 0.0 && (j.rate == 0.0 || (j.mean == 0.0 && j.vol == 0.0)));
     let lattice = !point_mass && c.vol == 0.0 && j.vol == 0.0;
     if !point_mass && !lattice {
         return None;
@@ -517,7 +518,8 @@ pub fn undefined_reason(c: &Contract, cfg: &FdConfig) -> Option<String> {
         return None;
     }
     Some(if t == 0.0 {
-        "not defined: expired row at the strike (the payoff's kink lies within the bumps)".to_string()
+        "not defined: expired row at the strike (the payoff's kink lies within the bumps)"
+            .to_string()
     } else if lattice {
         "not defined: zero diffusion and jump vol put a point of the terminal law at the strike \
          (the price has a kink within the bumps)"
