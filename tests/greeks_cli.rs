@@ -44,7 +44,8 @@ fn issue10_undefined_finite_differences_are_n_a_with_a_reason_not_a_flag() {
     // Rows: expired at the strike; zero vol and no jumps with F = K
     // (r = q = 0); zero vol and zero jump vol with a lattice point
     // S e^{-lambda k T} exactly at the strike (k = e^-0.1 - 1, lambda T = 1).
-    let lattice_strike = 100.0 * (-(0.1f64 * -1.0).exp_m1() * 1.0).exp();
+    // The lattice point with no jump: S e^{-lambda k T} = 100 e^{-k}.
+    let lattice_strike = 100.0 * (-(-0.1f64).exp_m1()).exp();
     let book = format!(
         "{HEADER}\n\
          exp,call,100,100,0,0.03,0,0.2,0.5,-0.1,0.15\n\

@@ -52,7 +52,9 @@ pub struct Args {
     /// [default: standard output]
     #[arg(short, long, value_name = "REPORT.csv")]
     pub output: Option<PathBuf>,
-    /// Monte Carlo paths per row (antithetic pairs count as two).
+    /// Monte Carlo paths per row (antithetic pairs count as two), rounded up
+    /// to whole blocks of 16384 (8192 with --no-antithetic); below one block
+    /// a warning says so. mc_paths shows the paths used.
     #[arg(
         long,
         value_name = "N",

@@ -93,7 +93,8 @@ pub struct Args {
     /// Turn Richardson extrapolation off (it is used with series and fourier, never with mc).
     #[arg(long)]
     pub no_richardson: bool,
-    /// Monte Carlo paths per repricing (--engine mc).
+    /// Monte Carlo paths per repricing (--engine mc), rounded up to whole
+    /// blocks of 16384; below one block a warning says so.
     #[arg(
         long,
         value_name = "N",

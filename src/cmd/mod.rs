@@ -158,24 +158,18 @@ pub fn simulated_paths(n: u64, antithetic: bool) -> u64 {
     n.div_ceil(block).max(1) * block
 }
 
-/// The message, if any, saying that `--paths n` is not what each row will
-/// simulate (below one block, or not a whole number of blocks).
+/// The message, if any, saying that `--paths n` is below the engine's
+/// minimum of one block. (A larger `n` is rounded up to whole blocks, by
+/// less than one block, as `--paths`'s help says; the `mc_paths` column
+/// and the report show the paths used.)
 pub fn paths_rounding_message(n: u64, antithetic: bool) -> Option<String> {
-    let sim = simulated_paths(n, antithetic);
     let block = simulated_paths(1, antithetic);
-    if sim == n {
-        None
-    } else if n < block {
-        Some(format!(
+    (n < block).then(|| {
+        format!(
             "--paths {n} is below the Monte Carlo engine's minimum of one block of {block} paths: \
-             each row simulates {sim} paths (the mc_paths column shows the paths used)"
-        ))
-    } else {
-        Some(format!(
-            "--paths {n} is not a whole number of Monte Carlo blocks of {block} paths: each row \
-             simulates {sim} paths (the mc_paths column shows the paths used)"
-        ))
-    }
+             each row simulates {block} paths"
+        )
+    })
 }
 
 /// Prints [`paths_rounding_message`] as a warning unless `quiet`.

@@ -406,11 +406,15 @@ mod tests {
             outcome: Outcome::Inconclusive,
             verdict: "inconclusive: x".into(),
         };
-        let mut a = CheckAccumulator::default();
-        a.flagged = (0..KEEP_FLAGGED as u64 - 2).map(row).collect();
-        let mut b = CheckAccumulator::default();
-        b.flagged = (5000..5005).map(row).collect();
-        b.flagged_more = 7;
+        let mut a = CheckAccumulator {
+            flagged: (0..KEEP_FLAGGED as u64 - 2).map(row).collect(),
+            ..Default::default()
+        };
+        let b = CheckAccumulator {
+            flagged: (5000..5005).map(row).collect(),
+            flagged_more: 7,
+            ..Default::default()
+        };
         a.merge(b);
         assert_eq!(a.flagged.len(), KEEP_FLAGGED);
         assert_eq!(a.flagged.last().unwrap().line, 5001);
