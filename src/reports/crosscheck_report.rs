@@ -495,6 +495,8 @@ table {{ border-collapse: collapse; font-size: 13px; margin: 8px 0; }}
 th, td {{ border: 1px solid #ddd; padding: 4px 8px; text-align: right; }}
 th {{ background: #f4f4f4; }} td:first-child, th:first-child {{ text-align: left; }}
 td.left, td.verdict {{ text-align: left; }}
+table.flagged td {{ white-space: nowrap; }} table.flagged td.verdict {{ white-space: normal; }}
+table.flagged td:nth-child(2), table.flagged th:nth-child(2), table.flagged th:last-child {{ text-align: left; }}
 tr.book td {{ font-weight: bold; background: #fafafa; }}
 .warn {{ color: #a00; }} .note {{ color: #555; font-size: 13px; }}
 figure {{ margin: 12px 0; }}
