@@ -426,3 +426,19 @@ fn issue10_zero_diffusion_rows_get_a_conclusive_fourier_check() {
         assert!(est <= 1e-8 * s, "{est} vs {s}");
     }
 }
+
+#[test]
+fn issue10_without_an_id_column_rows_are_named_by_line_only() {
+    // One row-reference scheme: without ids the summary must not show the
+    // data-row number (2 for the row on line 3) as if it were an id.
+    let book = "kind,spot,strike,expiry,rate,vol,jump_rate,jump_mean,jump_vol\n\
+                call,100,100,0.5,0.03,0.2,0.5,-0.1,0.15\n\
+                put,100,95,0.5,0.02,0,2,-0.1,0\n";
+    let (_, _, err) = run_with(book, &[]);
+    assert!(
+        err.contains("    line 3: inconclusive: fourier not applicable"),
+        "{err}"
+    );
+    assert!(!err.contains("(id "), "{err}");
+    assert!(err.contains("largest Fourier gaps  line 2 "), "{err}");
+}

@@ -303,7 +303,15 @@ pub fn run(args: Args) -> Result<ExitCode> {
             if out.non_finite().is_some() {
                 return Ok(()); // the pipeline fails the row; keep it out of the summary
             }
-            chunk.add(row.line, &row.id(), &row.contract, &r, &cfg);
+            // Rows are named by input line; an id only when the book has one
+            // (the row-number fallback of `BookRow::id` would be a second scheme).
+            chunk.add(
+                row.line,
+                row.explicit_id().unwrap_or(""),
+                &row.contract,
+                &r,
+                &cfg,
+            );
             Ok(())
         },
         |chunk| {
@@ -439,7 +447,11 @@ fn print_summary(s: &CheckAccumulator, cfg: &CheckConfig) {
         eprintln!("  {name}:");
         let listed: Vec<&FlaggedRow> = s.flagged_with(outcome).take(LISTED).collect();
         for f in &listed {
-            eprintln!("    line {} (id {}): {}", f.line, f.id, f.verdict);
+            if f.id.is_empty() {
+                eprintln!("    line {}: {}", f.line, f.verdict);
+            } else {
+                eprintln!("    line {} (id {}): {}", f.line, f.id, f.verdict);
+            }
         }
         if count > listed.len() as u64 {
             eprintln!(
@@ -453,7 +465,13 @@ fn print_summary(s: &CheckAccumulator, cfg: &CheckConfig) {
 fn fmt_list(items: &[(u64, String, f64)], f: impl Fn(f64) -> String) -> String {
     items
         .iter()
-        .map(|(line, id, x)| format!("{id} (line {line}) {}", f(*x)))
+        .map(|(line, id, x)| {
+            if id.is_empty() {
+                format!("line {line} {}", f(*x))
+            } else {
+                format!("{id} (line {line}) {}", f(*x))
+            }
+        })
         .collect::<Vec<_>>()
         .join(", ")
 }

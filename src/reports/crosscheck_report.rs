@@ -481,7 +481,13 @@ pub fn html(a: &CheckAccumulator, s: &RunSettings) -> String {
             return "&ndash;".to_string();
         }
         list.iter()
-            .map(|(line, id, x)| format!("{} (line {line}) {}", esc(id), f(*x)))
+            .map(|(line, id, x)| {
+                if id.is_empty() {
+                    format!("line {line} {}", f(*x))
+                } else {
+                    format!("{} (line {line}) {}", esc(id), f(*x))
+                }
+            })
             .collect::<Vec<_>>()
             .join(", ")
     };

@@ -54,7 +54,8 @@ pub const COVERAGE_EXPIRY: [(f64, &str); 5] = [
 pub struct FlaggedRow {
     /// Input line of the row.
     pub line: u64,
-    /// The row's id (or its row number without an id column).
+    /// The row's id (empty when the book has none or the field is empty:
+    /// rows are named by their input line).
     pub id: String,
     /// Call or put.
     pub kind: OptionKind,
@@ -76,7 +77,7 @@ pub struct FlaggedRow {
     pub verdict: String,
 }
 
-/// A row in a "largest" list: line, id and the value.
+/// A row in a "largest" list: line, id (possibly empty) and the value.
 pub type Extreme = (u64, String, f64);
 
 /// Fourier gaps in one bin of moneyness or expiry.
