@@ -27,8 +27,9 @@ fourier_error_est is the Fourier engine's own absolute error estimate; mc_method
 Monte Carlo estimator (exact at T = 0, plain, jump-count); mc_paths the paths simulated; mc_ess \
 the effective sample size of the likelihood weights; mc_hits the paths that paid, before weighting.\n\
 verdict is 'agree', 'inconclusive: <why>' (an engine could not resolve the price, e.g. no \
-in-the-money Monte Carlo paths, or the Fourier engine failed: price_fourier and fourier_gap \
-are then empty) or 'disagree: <why>'.\n\
+in-the-money Monte Carlo paths, or the Fourier engine failed or does not apply, as to a lattice \
+law with zero vol and zero jump vol: price_fourier and fourier_gap are then empty) or \
+'disagree: <why>'.\n\
 Each row's random stream is derived from --seed and the row's id (without an id: a hash of the \
 row's fields), so results do not depend on thread count, row order or how the book is split. \
 Rows that repeat an id share a stream: they are counted and named in a warning (this check holds \
