@@ -54,6 +54,11 @@ fn error_estimate_covers_the_true_error() {
     for row in read_fixture("merton_reference.csv") {
         let c = contract(&row);
         let want = num(&row, "price");
+        if c.vol == 0.0 && c.jumps.vol == 0.0 {
+            // A pure lattice law: refused, see a_pure_lattice_law_is_refused_with_a_reason.
+            assert_eq!(fourier::price(&c), Err(fourier::FourierError::Lattice));
+            continue;
+        }
         let f = fourier::price(&c).unwrap();
         let err = (f.price - want).abs();
         assert!(
@@ -141,4 +146,67 @@ fn extreme_jump_books_agree_with_the_series() {
             g.price
         );
     }
+}
+
+#[test]
+fn zero_diffusion_rows_match_the_mpmath_jump_count_sum() {
+    // Source: tests/data/zero_diffusion_reference.csv, 40-digit mpmath values
+    // of the Merton series summed over the jump count (n = 0 the zero-jump
+    // atom's discounted payoff), made by scripts/make_zero_diffusion_reference.py
+    // and cross-checked there against the textbook form of
+    // scripts/make_reference.py. The engine separates the atom analytically
+    // (docs/engines.md): 1e-10 relative, and the true error within its own
+    // estimate (plus rounding) on every row.
+    let rows = read_fixture("zero_diffusion_reference.csv");
+    assert!(rows.len() >= 80);
+    let mut worst = 0.0f64;
+    let mut worst_abs = 0.0f64;
+    for row in rows {
+        let c = contract(&row);
+        let want = num(&row, "price");
+        let f =
+            fourier::price(&c).unwrap_or_else(|e| panic!("{} {}: {e}", row["case"], row["kind"]));
+        let err = (f.price - want).abs();
+        worst_abs = worst_abs.max(err);
+        let rel = err / want;
+        if want > 1e-5 {
+            worst = worst.max(rel);
+        }
+        assert!(
+            rel <= 1e-10 || err <= 1e-13 * c.spot,
+            "{} {}: {} vs {want} (rel {rel:e})",
+            row["case"],
+            row["kind"],
+            f.price
+        );
+        assert!(
+            err <= f.error_estimate + 4.0 * f64::EPSILON * want,
+            "{} {}: error {err:e} above the engine's estimate {:e}",
+            row["case"],
+            row["kind"],
+            f.error_estimate
+        );
+        assert!(
+            f.error_estimate <= 1e-10 * want + 1e-13 * c.spot,
+            "{} {}: estimate {:e} too loose for a verdict",
+            row["case"],
+            row["kind"],
+            f.error_estimate
+        );
+    }
+    eprintln!(
+        "zero diffusion: worst relative error on prices above 1e-5 {worst:e}, worst absolute error {worst_abs:e}"
+    );
+}
+
+#[test]
+fn a_pure_lattice_law_is_refused_with_a_reason() {
+    // sigma = 0 and delta = 0: the terminal law is the lattice
+    // x0 + n mu_J with Poisson weights (docs/model.md); its characteristic
+    // function is periodic and never decays, so the Lewis integral has no
+    // error control. The engine says so instead of returning a number.
+    let c = merton(Put, 100.0, 95.0, 0.5, 0.02, 0.0, 0.0, 2.0, -0.1, 0.0);
+    let e = fourier::price(&c).unwrap_err();
+    assert_eq!(e, fourier::FourierError::Lattice);
+    assert!(e.to_string().contains("lattice"), "{e}");
 }

@@ -13,6 +13,7 @@ mod finite_diff;
 mod fourier;
 mod fuzz_cli;
 mod fuzz_regressions;
+mod greeks_cli;
 mod identities;
 mod implied_vol;
 mod implied_vol_cli;

@@ -1,19 +1,18 @@
 //! `saltus crosscheck`: every row priced by the series, Fourier and Monte
 //! Carlo engines, with a per-row verdict and a validation summary on stderr.
 
-use super::output::Output;
+use super::output::{Output, OutputDir};
 use super::{open_input, report_rows};
 use anyhow::{bail, Result};
-use indicatif::{ProgressBar, ProgressStyle};
-use saltus::book::{run_book, PipelineOptions, StreamKeys};
+use saltus::book::{run_book_with_state, PipelineOptions, StreamKeys};
 use saltus::engines::monte_carlo::{
     IntensityChoice, McConfig, Work, GAMMA_RANGE, MAX_JUMP_MEAN_SHIFT, MAX_PATHS,
 };
-use saltus::reports::crosscheck::{check, CheckConfig, CheckSummary, Outcome, SummaryRecord};
-use std::io::IsTerminal;
+use saltus::reports::crosscheck::{check, CheckConfig, Outcome, ABS_FLOOR};
+use saltus::reports::crosscheck_report::{self, RunSettings, REPORT_FILE};
+use saltus::reports::crosscheck_summary::{CheckAccumulator, FlaggedRow};
 use std::path::PathBuf;
 use std::process::ExitCode;
-use std::sync::Mutex;
 use std::time::Instant;
 
 /// Arguments of `saltus crosscheck`.
@@ -28,13 +27,23 @@ fourier_error_est is the Fourier engine's own absolute error estimate; mc_method
 Monte Carlo estimator (exact at T = 0, plain, jump-count); mc_paths the paths simulated; mc_ess \
 the effective sample size of the likelihood weights; mc_hits the paths that paid, before weighting.\n\
 verdict is 'agree', 'inconclusive: <why>' (an engine could not resolve the price, e.g. no \
-in-the-money Monte Carlo paths, or the Fourier engine failed: price_fourier and fourier_gap \
-are then empty) or 'disagree: <why>'.\n\
+in-the-money Monte Carlo paths, or the Fourier engine failed or does not apply, as to a lattice \
+law with zero vol and zero jump vol: price_fourier and fourier_gap are then empty) or \
+'disagree: <why>'.\n\
 Each row's random stream is derived from --seed and the row's id (without an id: a hash of the \
 row's fields), so results do not depend on thread count, row order or how the book is split. \
 Rows that repeat an id share a stream: they are counted and named in a warning (this check holds \
-about 32 bytes per row in memory).\n\
-Exit codes: 0 all rows checked and at most --allow-disagree disagreements; 1 otherwise; ",
+about 32 bytes per row in memory; everything else the summary and the report need is bounded: \
+fixed tables and the first 1000 flagged rows).\n\
+Rows are named by their input line everywhere (summary, report, errors). The summary on stderr \
+lists the inconclusive and disagreeing rows (the first 10 of each) with their reasons.\n\
+--report DIR writes DIR/report.html, a self-contained validation page (inline SVG, no scripts \
+or network): z-score histogram and normal quantile plot, coverage of the 95% intervals by \
+moneyness and expiry, Fourier gap against moneyness and expiry, the flagged rows, the run's \
+settings. DIR is replaced as a whole when the run completes (an existing DIR may hold only \
+report.html).\n\
+Exit codes: 0 all rows checked, at most --allow-disagree disagreements and, with \
+--fail-on-inconclusive, no inconclusive row; 1 otherwise; ",
     exit_2!()
 ))]
 pub struct Args {
@@ -44,7 +53,9 @@ pub struct Args {
     /// [default: standard output]
     #[arg(short, long, value_name = "REPORT.csv")]
     pub output: Option<PathBuf>,
-    /// Monte Carlo paths per row (antithetic pairs count as two).
+    /// Monte Carlo paths per row (antithetic pairs count as two), rounded up
+    /// to whole blocks of 16384 (8192 with --no-antithetic); below one block
+    /// a warning says so. mc_paths shows the paths used.
     #[arg(
         long,
         value_name = "N",
@@ -110,6 +121,13 @@ pub struct Args {
         allow_negative_numbers = true
     )]
     pub allow_disagree: u64,
+    /// Count inconclusive rows toward the exit code (exit 1 when any row
+    /// reaches no verdict).
+    #[arg(long)]
+    pub fail_on_inconclusive: bool,
+    /// Also write a self-contained HTML validation page, DIR/report.html.
+    #[arg(long, value_name = "DIR")]
+    pub report: Option<PathBuf>,
     #[command(flatten)]
     pub inputs: super::book_inputs::BookInputArgs,
     /// No progress bar and no summary on stderr.
@@ -206,32 +224,16 @@ fn config(args: &Args) -> Result<CheckConfig> {
     })
 }
 
-fn progress(args: &Args) -> ProgressBar {
-    if args.quiet || !std::io::stderr().is_terminal() {
-        return ProgressBar::hidden();
-    }
-    let total = if args.book.as_os_str() == "-" {
-        None
-    } else {
-        std::fs::read(&args.book)
-            .ok()
-            .map(|b| b.iter().filter(|&&c| c == b'\n').count() as u64)
-    };
-    match total {
-        Some(n) => ProgressBar::new(n.saturating_sub(1)).with_style(
-            ProgressStyle::with_template(
-                "{bar:40} {pos}/{len} rows  {elapsed} elapsed, {eta} left",
-            )
-            .expect("valid template"),
-        ),
-        None => ProgressBar::new_spinner(),
-    }
-}
+/// Rows of each kind listed on stderr before "and N more".
+const LISTED: usize = 10;
 
 /// Runs the command.
 pub fn run(args: Args) -> Result<ExitCode> {
     let start = Instant::now();
     let cfg = config(&args)?;
+    if let Work::Paths(p) = cfg.mc.work {
+        super::warn_paths_rounding(p, cfg.mc.antithetic, args.quiet);
+    }
     let columns = [
         "price_series",
         "price_fourier",
@@ -252,94 +254,164 @@ pub fn run(args: Args) -> Result<ExitCode> {
         result_columns: columns.iter().map(|s| s.to_string()).collect(),
         inputs: args.inputs.inputs()?,
     };
-    let records = Mutex::new(Vec::new());
-    let bar = progress(&args);
+    // The report directory is staged before any work, so a refused
+    // directory stops the run before the book is read.
+    let staged = match &args.report {
+        Some(dir) => Some(OutputDir::stage(dir, &args.book, &[REPORT_FILE])?),
+        None => None,
+    };
+    let bar = super::progress_bar(&args.book, args.quiet);
     let input = open_input(&args.book)?;
     let mut output = Output::open(args.output.as_deref(), &args.book)?;
     let keys = StreamKeys::new(cfg.mc.seed);
-    let summary = run_book(input, &mut output, &opts, |row, out| {
-        let key = keys.key(row);
-        let r = check(&row.contract, key, &cfg).map_err(|e| e.to_string())?;
-        out.push_f64(r.price_series);
-        match r.fourier {
-            Some(f) => out.push_f64(f.price),
-            None => out.push_empty(1),
-        }
-        out.push_f64(r.mc.price);
-        out.push_f64(r.mc.std_error);
-        match r.mc_z {
-            Some(z) => out.push_f64(z),
-            None => out.push_empty(1),
-        }
-        match r.fourier_gap {
-            Some(g) => out.push_f64(g),
-            None => out.push_empty(1),
-        }
-        match r.fourier_gap {
-            Some(g) if r.price_series > 0.0 => out.push_f64(g / r.price_series),
-            _ => out.push_empty(1),
-        }
-        match r.fourier {
-            Some(f) => out.push_f64(f.error_estimate),
-            None => out.push_empty(1),
-        }
-        out.push_str(r.mc.method.as_str());
-        out.push_u64(r.mc.paths);
-        out.push_f64(r.mc.ess);
-        out.push_u64(r.mc.hits);
-        out.push_str(&r.verdict);
-        if out.non_finite().is_some() {
-            return Ok(()); // the pipeline fails the row; keep it out of the summary
-        }
-        let rel = match r.fourier_gap {
-            Some(g) if r.price_series > 0.0 => g / r.price_series,
-            _ => 0.0,
-        };
-        records.lock().expect("records lock").push(SummaryRecord {
-            row: row.row,
-            id: row.id().into_owned(),
-            outcome: r.outcome,
-            z: r.mc_z,
-            fourier_rel_gap: rel,
-            paths: r.mc.paths,
-        });
-        bar.inc(1);
-        Ok(())
-    })?;
-    output.commit()?;
+    let mut acc = CheckAccumulator::default();
+    let summary = run_book_with_state(
+        input,
+        &mut output,
+        &opts,
+        |row, out, chunk: &mut CheckAccumulator| {
+            let key = keys.key(row);
+            let r = check(&row.contract, key, &cfg).map_err(|e| e.to_string())?;
+            out.push_f64(r.price_series);
+            match r.fourier {
+                Some(f) => out.push_f64(f.price),
+                None => out.push_empty(1),
+            }
+            out.push_f64(r.mc.price);
+            out.push_f64(r.mc.std_error);
+            match r.mc_z {
+                Some(z) => out.push_f64(z),
+                None => out.push_empty(1),
+            }
+            match r.fourier_gap {
+                Some(g) => out.push_f64(g),
+                None => out.push_empty(1),
+            }
+            match r.fourier_gap {
+                Some(g) if r.price_series > 0.0 => out.push_f64(g / r.price_series),
+                _ => out.push_empty(1),
+            }
+            match r.fourier {
+                Some(f) => out.push_f64(f.error_estimate),
+                None => out.push_empty(1),
+            }
+            out.push_str(r.mc.method.as_str());
+            out.push_u64(r.mc.paths);
+            out.push_f64(r.mc.ess);
+            out.push_u64(r.mc.hits);
+            out.push_str(&r.verdict);
+            bar.inc(1);
+            if out.non_finite().is_some() {
+                return Ok(()); // the pipeline fails the row; keep it out of the summary
+            }
+            // Rows are named by input line; an id only when the book has one
+            // (the row-number fallback of `BookRow::id` would be a second scheme).
+            chunk.add(
+                row.line,
+                row.explicit_id().unwrap_or(""),
+                &row.contract,
+                &r,
+                &cfg,
+            );
+            Ok(())
+        },
+        |chunk| {
+            acc.merge(chunk);
+            Ok(())
+        },
+    )?;
     bar.finish_and_clear();
-    let check = CheckSummary::from_records(records.into_inner().expect("records lock"), 5);
+    let seconds = start.elapsed().as_secs_f64();
+    if let (Some(staged), Some(dir)) = (staged, &args.report) {
+        let settings = RunSettings {
+            input: args.book.display().to_string(),
+            command_line: std::env::args().collect::<Vec<_>>().join(" "),
+            work: match cfg.mc.work {
+                Work::Paths(p) => {
+                    let sim = super::simulated_paths(p, cfg.mc.antithetic);
+                    if sim == p {
+                        format!("{p} paths")
+                    } else {
+                        format!("{sim} paths (--paths {p}, rounded up to whole blocks)")
+                    }
+                }
+                Work::AbsoluteSe(x) => format!(
+                    "until the standard error is below {x} (at most {} paths)",
+                    cfg.mc.max_paths
+                ),
+                Work::RelativeSe(x) => format!(
+                    "until the standard error is below {}% of the price (at most {} paths)",
+                    100.0 * x,
+                    cfg.mc.max_paths
+                ),
+            },
+            seed: cfg.mc.seed,
+            version: env!("CARGO_PKG_VERSION").to_string(),
+            date: jiff::Timestamp::now()
+                .strftime("%Y-%m-%d %H:%M:%S UTC")
+                .to_string(),
+            z_max: cfg.z_max,
+            fourier_rel_tol: cfg.fourier_rel_tol,
+            abs_floor: ABS_FLOOR,
+            threads: rayon::current_num_threads(),
+            rows_read: summary.rows,
+            rows_failed: summary.failed,
+            first_errors: summary.first_errors.clone(),
+            seconds,
+        };
+        std::fs::write(
+            staged.path().join(REPORT_FILE),
+            crosscheck_report::html(&acc, &settings),
+        )?;
+        output.commit()?;
+        staged.commit()?;
+        if !args.quiet {
+            eprintln!(
+                "saltus: validation page written to {}",
+                dir.join(REPORT_FILE).display()
+            );
+        }
+    } else {
+        output.commit()?;
+    }
     if !args.quiet {
-        print_summary(&check, &cfg);
-        report_rows(&summary, "checked", start.elapsed().as_secs_f64());
+        print_summary(&acc, &cfg);
+        report_rows(&summary, "checked", seconds);
         if let Some(w) = keys.duplicate_warning() {
             eprintln!("saltus: warning: {w}");
         }
     }
-    let too_many = check.disagree > args.allow_disagree;
+    let too_many = acc.disagree > args.allow_disagree;
     if too_many && !args.quiet {
         eprintln!(
             "saltus: {} rows disagree, more than the {} allowed (--allow-disagree)",
-            check.disagree, args.allow_disagree
+            acc.disagree, args.allow_disagree
         );
     }
-    Ok(if summary.failed > 0 || too_many {
+    let unsure = args.fail_on_inconclusive && acc.inconclusive > 0;
+    if unsure && !args.quiet {
+        eprintln!(
+            "saltus: {} rows reached no verdict (--fail-on-inconclusive)",
+            acc.inconclusive
+        );
+    }
+    Ok(if summary.failed > 0 || too_many || unsure {
         ExitCode::from(1)
     } else {
         ExitCode::SUCCESS
     })
 }
 
-fn print_summary(s: &CheckSummary, cfg: &CheckConfig) {
-    let agree = s.rows - s.disagree - s.inconclusive;
+fn print_summary(s: &CheckAccumulator, cfg: &CheckConfig) {
     eprintln!("Cross-check of the Merton series against Fourier (Lewis) and Monte Carlo");
     eprintln!("  rows checked          {}", s.rows);
-    eprintln!("  agree                 {agree}");
+    eprintln!("  agree                 {}", s.agree);
     eprintln!("  inconclusive          {}", s.inconclusive);
     eprintln!("  disagree (flagged)    {}", s.disagree);
     eprintln!(
-        "  tolerances            |z| <= {}, |fourier gap| <= {:e} x price",
-        cfg.z_max, cfg.fourier_rel_tol
+        "  tolerances            Monte Carlo |z| <= {} (standard errors); Fourier |gap| <= {:e} x price_series \
+         (relative), at least {:e} x spot (absolute, price units)",
+        cfg.z_max, cfg.fourier_rel_tol, ABS_FLOOR
     );
     eprintln!(
         "  Monte Carlo paths     {} in all, seed {}",
@@ -349,9 +421,9 @@ fn print_summary(s: &CheckSummary, cfg: &CheckConfig) {
         eprintln!(
             "  z-scores              n = {}, mean {:+.3}, sd {:.3}, share |z| <= 1.96: {:.1}% (standard normal: 0, 1, 95%)",
             s.z_count,
-            s.z_mean,
-            s.z_sd,
-            100.0 * s.z_within_196
+            s.z_mean(),
+            s.z_sd(),
+            100.0 * s.z_share_within_196()
         );
     }
     if !s.worst_z.is_empty() {
@@ -363,16 +435,44 @@ fn print_summary(s: &CheckSummary, cfg: &CheckConfig) {
     if !s.worst_fourier.is_empty() {
         eprintln!(
             "  largest Fourier gaps  {}",
-            fmt_list(&s.worst_fourier, |g| format!("{g:+.1e} rel"))
+            fmt_list(&s.worst_fourier, |g| format!("{g:+.2e} x tolerance"))
         );
     }
-    let _ = Outcome::Agree;
+    for (outcome, count, name) in [
+        (Outcome::Disagree, s.disagree, "disagreeing rows"),
+        (Outcome::Inconclusive, s.inconclusive, "inconclusive rows"),
+    ] {
+        if count == 0 {
+            continue;
+        }
+        eprintln!("  {name}:");
+        let listed: Vec<&FlaggedRow> = s.flagged_with(outcome).take(LISTED).collect();
+        for f in &listed {
+            if f.id.is_empty() {
+                eprintln!("    line {}: {}", f.line, f.verdict);
+            } else {
+                eprintln!("    line {} (id {}): {}", f.line, f.id, f.verdict);
+            }
+        }
+        if count > listed.len() as u64 {
+            eprintln!(
+                "    ... and {} more (see the verdict column)",
+                count - listed.len() as u64
+            );
+        }
+    }
 }
 
 fn fmt_list(items: &[(u64, String, f64)], f: impl Fn(f64) -> String) -> String {
     items
         .iter()
-        .map(|(row, id, x)| format!("{id} (row {row}) {}", f(*x)))
+        .map(|(line, id, x)| {
+            if id.is_empty() {
+                format!("line {line} {}", f(*x))
+            } else {
+                format!("{id} (line {line}) {}", f(*x))
+            }
+        })
         .collect::<Vec<_>>()
         .join(", ")
 }

@@ -8,7 +8,7 @@ use anyhow::{bail, Result};
 use saltus::book::{run_book, PipelineOptions, StreamKeys};
 use saltus::engines::monte_carlo::{McConfig, Work, MAX_PATHS};
 use saltus::engines::series;
-use saltus::engines::{FourierEngine, PricingEngine, SeriesEngine};
+use saltus::engines::{FourierEngine, MonteCarloEngine, PricingEngine, SeriesEngine};
 use saltus::greeks::finite_diff::{self, FdConfig};
 use saltus::greeks::SENSITIVITY_NAMES;
 use std::path::PathBuf;
@@ -44,8 +44,12 @@ pub enum Method {
     columns_read!(),
     "Columns written: every input column echoed, then\n  \
 --method analytic|fd: price, the 11 Greeks, status\n  \
---method both: for each Greek G: G_analytic, G_fd, G_abs_diff, G_rel_diff, G_flag (ok or DIFF), \
-then price, flagged (the names of flagged Greeks), status.\n\
+--method both: for each Greek G: G_analytic, G_fd, G_abs_diff, G_rel_diff, G_flag (ok, DIFF or \
+n/a), then price, flagged (the names of flagged Greeks), fd_note, status.\n\
+Where a finite difference is not defined (an expired row at the strike, zero variance with the \
+forward at the strike, a point of a lattice law at the strike: the price has a kink within the \
+bumps) every G_flag is n/a, G_fd and the differences are empty, and fd_note says why; such a row \
+is not flagged.\n\
 The Greeks, in raw units (per 1.00 of each input; theta = -dV/dT per year): delta gamma vega \
 theta rho div_rho d_jump_rate d_jump_mean d_jump_vol vanna volga.\n\
 With --engine mc each row's random stream is derived from --seed and the row's id (without an id: \
@@ -89,7 +93,8 @@ pub struct Args {
     /// Turn Richardson extrapolation off (it is used with series and fourier, never with mc).
     #[arg(long)]
     pub no_richardson: bool,
-    /// Monte Carlo paths per repricing (--engine mc).
+    /// Monte Carlo paths per repricing (--engine mc), rounded up to whole
+    /// blocks of 16384; below one block a warning says so.
     #[arg(
         long,
         value_name = "N",
@@ -107,7 +112,7 @@ pub struct Args {
     pub seed: u64,
     #[command(flatten)]
     pub inputs: super::book_inputs::BookInputArgs,
-    /// No summary on stderr.
+    /// No progress bar and no summary on stderr.
     #[arg(short, long)]
     pub quiet: bool,
 }
@@ -168,6 +173,7 @@ pub fn run(args: Args) -> Result<ExitCode> {
             }
             columns.push("price".into());
             columns.push("flagged".into());
+            columns.push("fd_note".into());
         }
     }
     columns.push("status".into());
@@ -181,21 +187,20 @@ pub fn run(args: Args) -> Result<ExitCode> {
         seed: args.seed,
         ..McConfig::default()
     };
+    if args.engine == EngineChoice::Mc && args.method != Method::Analytic {
+        super::warn_paths_rounding(args.paths, mc_cfg.antithetic, args.quiet);
+    }
+    let mc_probe = MonteCarloEngine {
+        config: mc_cfg.clone(),
+        key: 0,
+    };
+    let bar = super::progress_bar(&args.book, args.quiet);
     let input = open_input(&args.book)?;
     let mut output = Output::open(args.output.as_deref(), &args.book)?;
     let keys = StreamKeys::new(args.seed);
     let summary = run_book(input, &mut output, &opts, |row, out| {
         let c = &row.contract;
-        let fd = |_: ()| -> Result<finite_diff::FdGreeks, String> {
-            let mc;
-            let engine: &dyn PricingEngine = match args.engine {
-                EngineChoice::Series => &SeriesEngine,
-                EngineChoice::Fourier => &FourierEngine,
-                EngineChoice::Mc => {
-                    mc = finite_diff::crn_monte_carlo(c, keys.key(row), &mc_cfg);
-                    &mc
-                }
-            };
+        let fd_config = |engine: &dyn PricingEngine| {
             let mut cfg = FdConfig::for_engine(engine);
             if let Some(h) = args.spot_bump {
                 cfg.bumps.spot_rel = h;
@@ -206,7 +211,19 @@ pub fn run(args: Args) -> Result<ExitCode> {
             if args.no_richardson {
                 cfg.richardson = false;
             }
-            finite_diff::greeks(engine, c, &cfg)
+            cfg
+        };
+        let fd = |_: ()| -> Result<finite_diff::FdGreeks, String> {
+            let mc;
+            let engine: &dyn PricingEngine = match args.engine {
+                EngineChoice::Series => &SeriesEngine,
+                EngineChoice::Fourier => &FourierEngine,
+                EngineChoice::Mc => {
+                    mc = finite_diff::crn_monte_carlo(c, keys.key(row), &mc_cfg);
+                    &mc
+                }
+            };
+            finite_diff::greeks(engine, c, &fd_config(engine))
         };
         match args.method {
             Method::Analytic => {
@@ -225,6 +242,24 @@ pub fn run(args: Args) -> Result<ExitCode> {
             }
             Method::Both => {
                 let a = series::price(c).map_err(|e| e.to_string())?.greeks;
+                // The bumps depend on the engine's kind only, not on its state.
+                let probe: &dyn PricingEngine = match args.engine {
+                    EngineChoice::Series => &SeriesEngine,
+                    EngineChoice::Fourier => &FourierEngine,
+                    EngineChoice::Mc => &mc_probe,
+                };
+                if let Some(reason) = finite_diff::undefined_reason(c, &fd_config(probe)) {
+                    for ga in a.sensitivities() {
+                        out.push_f64(ga);
+                        out.push_empty(3);
+                        out.push_str("n/a");
+                    }
+                    out.push_f64(a.price);
+                    out.push_empty(1);
+                    out.push_str(&reason);
+                    bar.inc(1);
+                    return Ok(());
+                }
                 let f = fd(())?;
                 let mut flagged = Vec::new();
                 for (i, ((ga, gf), noise)) in a
@@ -255,13 +290,16 @@ pub fn run(args: Args) -> Result<ExitCode> {
                 }
                 out.push_f64(a.price);
                 out.push_str(&flagged.join(" "));
+                out.push_empty(1);
                 if !flagged.is_empty() && out.non_finite().is_none() {
                     flagged_rows.fetch_add(1, Ordering::Relaxed);
                 }
             }
         }
+        bar.inc(1);
         Ok(())
     })?;
+    bar.finish_and_clear();
     output.commit()?;
     let flagged = flagged_rows.load(Ordering::Relaxed);
     if !args.quiet {

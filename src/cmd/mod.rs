@@ -118,3 +118,66 @@ pub fn rows_exit_code(summary: &BookSummary) -> ExitCode {
         ExitCode::SUCCESS
     }
 }
+
+/// The progress bar of a long per-row command on stderr (hidden with
+/// `quiet` or when stderr is not a terminal): rows done out of the book's
+/// line count, elapsed time and time left for a file; rows done and elapsed
+/// time for standard input, whose length is not known in advance.
+pub fn progress_bar(book: &Path, quiet: bool) -> indicatif::ProgressBar {
+    use indicatif::{ProgressBar, ProgressStyle};
+    use std::io::IsTerminal;
+    if quiet || !io::stderr().is_terminal() {
+        return ProgressBar::hidden();
+    }
+    let total = if book.as_os_str() == "-" {
+        None
+    } else {
+        std::fs::read(book)
+            .ok()
+            .map(|b| b.iter().filter(|&&c| c == b'\n').count() as u64)
+    };
+    match total {
+        Some(n) => ProgressBar::new(n.saturating_sub(1)).with_style(
+            ProgressStyle::with_template(
+                "{bar:40} {pos}/{len} rows  {elapsed} elapsed, {eta} left",
+            )
+            .expect("valid template"),
+        ),
+        None => ProgressBar::new_spinner().with_style(
+            ProgressStyle::with_template("{spinner} {pos} rows done  {elapsed} elapsed")
+                .expect("valid template"),
+        ),
+    }
+}
+
+/// Paths a row simulates for `--paths n`: the Monte Carlo engine works in
+/// whole blocks of [`BLOCK_PAIRS`](saltus::engines::monte_carlo::BLOCK_PAIRS)
+/// antithetic pairs (each pair two paths; one path per draw without
+/// antithetics), at least one block.
+pub fn simulated_paths(n: u64, antithetic: bool) -> u64 {
+    let block = saltus::engines::monte_carlo::BLOCK_PAIRS * if antithetic { 2 } else { 1 };
+    n.div_ceil(block).max(1) * block
+}
+
+/// The message, if any, saying that `--paths n` is below the engine's
+/// minimum of one block. (A larger `n` is rounded up to whole blocks, by
+/// less than one block, as `--paths`'s help says; the `mc_paths` column
+/// and the report show the paths used.)
+pub fn paths_rounding_message(n: u64, antithetic: bool) -> Option<String> {
+    let block = simulated_paths(1, antithetic);
+    (n < block).then(|| {
+        format!(
+            "--paths {n} is below the Monte Carlo engine's minimum of one block of {block} paths: \
+             each row simulates {block} paths"
+        )
+    })
+}
+
+/// Prints [`paths_rounding_message`] as a warning unless `quiet`.
+pub fn warn_paths_rounding(n: u64, antithetic: bool, quiet: bool) {
+    if let Some(m) = paths_rounding_message(n, antithetic) {
+        if !quiet {
+            eprintln!("saltus: warning: {m}");
+        }
+    }
+}

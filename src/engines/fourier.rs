@@ -16,13 +16,38 @@
 //! `phi_BS = exp(-s^2 T (u^2 + 1/4) / 2)`,
 //! `phi_M = exp(-sigma^2 T (u^2 + 1/4)/2 + lambda T (e^{mu_J/2 + delta^2/8 - delta^2 u^2/2 + iu(mu_J + delta^2/2)} - 1 - k/2 - iuk))`.
 //!
+//! # Zero-jump atom
+//! Without diffusion (`sigma = 0`) the no-jump state is an atom of the
+//! terminal law (mass `p0 = e^{-lambda T}` at `x0 = -lambda k T`), so
+//! `phi_M` does not decay and the integral above converges only like
+//! `1/u^2`. When the no-jump part is much narrower than one jump
+//! (`sigma^2 T < delta^2 / 16`, [`ATOM_SEPARATION_RATIO`]) it is taken out
+//! analytically: `I[phi] = E[min(e^X, e^kappa)]` is linear in the law, so
+//! with `phi_M = p0 phi_0 + phi_R` (`phi_0` the no-jump law, normal with
+//! variance `sigma^2 T`, a point mass when `sigma = 0`; `phi_R` the rest, of
+//! mass `m = 1 - p0` and first moment `m1 = 1 - p0 e^{x0}`)
+//! `V = p0 BS(S e^{x0}, sigma) + m BS(S m1/m, sqrt(w/T)) - e^{-rT} F (e^{kappa/2}/pi) int Re(e^{-iu kappa} [phi_R - phi_C](u - i/2)) / (u^2 + 1/4) du`,
+//! where the control `phi_C` is a normal law of mass `m`, the same first
+//! moment and variance `w = sigma^2 T + (lambda T / m)(mu_J^2 + delta^2)`
+//! (at least the variance of one jump), and `BS(S, sigma)` at `sigma = 0` is
+//! the discounted intrinsic value of the forward. Every conditional law
+//! given `N = n >= 1` is normal with variance at least `v1 = sigma^2 T + delta^2`,
+//! so `|phi_R(u - i/2)| <= sqrt(m m1) e^{-v1 u^2 / 2}`, and the
+//! remainder decays like a Gaussian. `phi_R` is computed as
+//! `p0 phi_0 (e^{lambda T psi_J} - 1)` with a complex `expm1` while
+//! `lambda T |psi_J| < 1`, so it keeps its relative accuracy where it is small.
+//! With `sigma = 0` and `delta = 0` as well (and jumps of size other than 1)
+//! the law is a lattice of point masses: that is outside this engine's
+//! claim and it says so ([`FourierError::Lattice`]).
+//!
 //! # Error estimate
 //! Each panel is integrated by 24-point Gauss-Legendre on the panel and on
 //! its two halves; the difference is the panel's error estimate, and panels
 //! are bisected until it is small. The integral is cut at `U` where a
 //! Gaussian-tail bound on the rest is negligible; without diffusion
-//! (`sigma = 0`) the integrand decays only like `1/u^2`, `U` is capped, and
-//! the bound on the omitted tail is reported. The returned error estimate is
+//! (`sigma = 0`) and without the atom separated (a jump vol that is tiny too)
+//! the integrand decays only like `1/u^2`, `U` is capped, and the bound on
+//! the omitted tail is reported. The returned error estimate is
 //! the sum of panel estimates, the tail bound and a rounding allowance, in
 //! price units.
 
@@ -39,6 +64,9 @@ pub const FOURIER_REL_TOL: f64 = 1e-12;
 pub const FOURIER_ABS_TOL_RANGE: (f64, f64) = (1e-16, 1e-13);
 /// Largest integration limit (reached only with little or no diffusion).
 pub const FOURIER_MAX_U: f64 = 1e5;
+/// The zero-jump state is separated ([module docs](self)) when its variance
+/// `sigma^2 T` is below this fraction of one jump's variance `delta^2`.
+pub const ATOM_SEPARATION_RATIO: f64 = 1.0 / 16.0;
 /// Bisection depth limit per initial panel.
 const MAX_DEPTH: u32 = 10;
 /// Most quadrature panels per price (each one 72 integrand evaluations:
@@ -88,6 +116,14 @@ pub enum FourierError {
         /// Upper end of the price range: discounted spot (call) or strike (put).
         range: f64,
     },
+    /// No diffusion and no jump-size dispersion: the terminal law is a
+    /// lattice of point masses, whose characteristic function does not
+    /// decay; outside this engine's claim.
+    #[error(
+        "zero diffusion vol and zero jump vol: the terminal law is a lattice of point masses \
+         (its characteristic function does not decay), outside the Fourier engine's claim"
+    )]
+    Lattice,
 }
 
 /// A Fourier price and its estimated absolute error.
@@ -116,6 +152,22 @@ struct Integrand {
     jump_damp: f64,
     jump_freq: f64,
     k: f64,
+    /// `Some` when the zero-jump atom is separated.
+    sep: Option<Separated>,
+}
+
+/// The parts of the separated integrand (module docs, "Zero-jump atom").
+struct Separated {
+    /// `-lambda T (1 + k/2)`: log modulus of `p0 phi_0(u - i/2)` before the diffusion factor.
+    atom_log_amp: f64,
+    /// `lambda T k`: frequency of `p0 phi_0`'s phase.
+    atom_freq: f64,
+    /// `ln m + b/2` with `b = ln(m1/m)`: log modulus of the control at `u = 0` before its decay.
+    ctrl_log_amp: f64,
+    /// `w`: the control's variance.
+    ctrl_var: f64,
+    /// `b`: the control's phase frequency.
+    ctrl_freq: f64,
 }
 
 impl Integrand {
@@ -139,6 +191,31 @@ impl Integrand {
     #[inline]
     fn eval(&self, u: f64) -> f64 {
         let q = u * u + 0.25;
+        if let Some(sep) = &self.sep {
+            // p0 phi_0 (e^z - 1) with z = lambda T e^{g + iu theta}.
+            let atom = Complex64::from_polar(
+                (sep.atom_log_amp - 0.5 * self.var_diff * q).exp(),
+                -u * sep.atom_freq,
+            );
+            let g = self.jump_log_amp - self.jump_damp * u * u;
+            let z = Complex64::from_polar(self.lam_t * g.exp(), u * self.jump_freq);
+            let rest = if z.norm() < 1.0 {
+                let (sin, cos) = z.im.sin_cos();
+                let half = (0.5 * z.im).sin();
+                let em1 = z.re.exp_m1();
+                atom * Complex64::new(em1 * cos - 2.0 * half * half, (1.0 + em1) * sin)
+            } else {
+                let expo =
+                    Complex64::new(-0.5 * self.var_diff * q, 0.0) + self.lam_t * self.jump_part(u);
+                expo.exp() - atom
+            };
+            let ctrl = Complex64::from_polar(
+                (sep.ctrl_log_amp - 0.5 * sep.ctrl_var * q).exp(),
+                u * sep.ctrl_freq,
+            );
+            let rotated = (rest - ctrl) * Complex64::from_polar(1.0, -u * self.kappa);
+            return rotated.re / q;
+        }
         let bs = (-0.5 * self.var_ref * q).exp();
         let expo = Complex64::new(-0.5 * self.var_diff * q, 0.0) + self.lam_t * self.jump_part(u);
         let merton = expo.exp();
@@ -196,19 +273,110 @@ pub fn price(c: &Contract) -> Result<FourierResult, FourierError> {
             evaluations: 0,
         });
     }
-    let f = Integrand {
+    let v = c.vol * c.vol * t;
+    let jump_var = j.vol * j.vol;
+    if v == 0.0 && jump_var == 0.0 {
+        return Err(FourierError::Lattice);
+    }
+    let separated = v < ATOM_SEPARATION_RATIO * jump_var;
+    let mut f = Integrand {
         kappa,
         var_ref: s2 * t,
-        var_diff: c.vol * c.vol * t,
+        var_diff: v,
         lam_t,
-        jump_log_amp: 0.5 * j.mean + 0.125 * j.vol * j.vol,
-        jump_damp: 0.5 * j.vol * j.vol,
-        jump_freq: j.mean + 0.5 * j.vol * j.vol,
+        jump_log_amp: 0.5 * j.mean + 0.125 * jump_var,
+        jump_damp: 0.5 * jump_var,
+        jump_freq: j.mean + 0.5 * jump_var,
         k,
+        sep: None,
+    };
+    // The price the integral corrects (the Black-Scholes control, or the
+    // separated atom plus its control), the bound on the omitted tail of
+    // the integral beyond `u`, the first guess of the integration limit and
+    // the natural width of the first panels.
+    let (control, tail, upper, width): (f64, Box<dyn Fn(f64) -> f64>, f64, f64) = if separated {
+        // Module docs, "Zero-jump atom".
+        let p0 = (-lam_t).exp();
+        let m = -(-lam_t).exp_m1();
+        let m1 = -(-lam_t * (1.0 + k)).exp_m1();
+        let b = m1.ln() - m.ln();
+        let w = v + lam_t / m * (j.mean * j.mean + jump_var);
+        let atom = if p0 > 0.0 {
+            p0 * black_scholes::price(
+                c.kind,
+                c.spot * (-lam_t * k).exp(),
+                c.strike,
+                t,
+                c.rate,
+                c.div_yield,
+                c.vol,
+            )
+        } else {
+            0.0
+        };
+        let ctrl = m * black_scholes::price(
+            c.kind,
+            c.spot * (m1 / m),
+            c.strike,
+            t,
+            c.rate,
+            c.div_yield,
+            (w / t).sqrt(),
+        );
+        f.sep = Some(Separated {
+            atom_log_amp: -lam_t * (1.0 + 0.5 * k),
+            atom_freq: lam_t * k,
+            ctrl_log_amp: m.ln() + 0.5 * b,
+            ctrl_var: w,
+            ctrl_freq: b,
+        });
+        let v1 = v + jump_var;
+        let amp = (m * m1).sqrt();
+        let tail = move |u: f64| -> f64 {
+            amp * ((-0.5 * v1 * u * u).exp() / (v1 * u * u * u)
+                + (-0.5 * w * u * u).exp() / (w * u * u * u))
+        };
+        let narrow = v1.min(w);
+        (
+            atom + ctrl,
+            Box::new(tail),
+            8.0 / narrow.sqrt(),
+            1.0 / narrow.sqrt(),
+        )
+    } else {
+        // |phi(u - i/2)| <= exp(-sigma^2 T u^2 / 2) C0 with
+        // C0 = exp(lam_t (e^{jump_log_amp} + 1 + |k|/2)) bounds the Merton part (the BS
+        // part decays faster); the tail beyond U is at most
+        // 2 C0 exp(-v U^2/2) / (v U^3) for v = sigma^2 T > 0.
+        let c0 = (lam_t * (f.jump_log_amp.exp() + 1.0 + 0.5 * k.abs()))
+            .exp()
+            .min(1e300);
+        let var_ref = s2 * t;
+        let tail = move |u: f64| -> f64 {
+            if v > 0.0 {
+                2.0 * c0 * (-0.5 * v * u * u).exp() / (v * u * u * u)
+                    + (-0.5 * var_ref * u * u).exp() / u
+            } else {
+                // |phi_M| <= 1 and the BS part is negligible: the tail is below 2/U.
+                2.0 / u
+            }
+        };
+        let upper = if v > 0.0 {
+            8.0 / v.sqrt()
+        } else {
+            100.0 / var_ref.sqrt()
+        };
+        (
+            control,
+            Box::new(tail),
+            upper,
+            1.0 / s2.max(1e-12).sqrt() / t.sqrt(),
+        )
     };
     let scale = disc * fwd * (0.5 * kappa).exp() / PI;
     let (lo, hi) = FOURIER_ABS_TOL_RANGE;
-    // Rounding: |phi(u - i/2)| <= 1, so the integral's terms are bounded by
+    // Rounding: |phi(u - i/2)| <= 1 (and each part of the separated
+    // integrand is below 1 too), so the integral's terms are bounded by
     // 1/(u^2 + 1/4), whose integral is pi; allow two ulps of each part.
     let rounding = 2.0 * f64::EPSILON * (control.abs() + scale * PI);
     // Never ask for less than the rounding level: far from the money (strike
@@ -222,28 +390,7 @@ pub fn price(c: &Contract) -> Result<FourierResult, FourierError> {
         .max(rounding_floor);
     let tol = tol_price / scale.max(f64::MIN_POSITIVE);
 
-    // Integration limit: |phi(u - i/2)| <= exp(-sigma^2 T u^2 / 2) C0 with
-    // C0 = exp(lam_t (e^{jump_log_amp} + 1 + |k|/2)) bounds the Merton part (the BS
-    // part decays faster); the tail beyond U is at most
-    // 2 C0 exp(-v U^2/2) / (v U^3) for v = sigma^2 T > 0.
-    let v = c.vol * c.vol * t;
-    let c0 = (lam_t * (f.jump_log_amp.exp() + 1.0 + 0.5 * k.abs()))
-        .exp()
-        .min(1e300);
-    let tail = |u: f64| -> f64 {
-        if v > 0.0 {
-            2.0 * c0 * (-0.5 * v * u * u).exp() / (v * u * u * u)
-                + (-0.5 * s2 * t * u * u).exp() / u
-        } else {
-            // |phi_M| <= 1 and the BS part is negligible: the tail is below 2/U.
-            2.0 / u
-        }
-    };
-    let mut upper = if v > 0.0 {
-        8.0 / v.sqrt()
-    } else {
-        100.0 / (s2 * t).sqrt()
-    };
+    let mut upper = upper;
     while tail(upper) > tol && upper < FOURIER_MAX_U {
         upper *= 1.25;
     }
@@ -251,8 +398,8 @@ pub fn price(c: &Contract) -> Result<FourierResult, FourierError> {
     let tail_bound = tail(upper);
 
     // Initial panels: about one per oscillation and per unit of the
-    // diffusion's natural frequency scale.
-    let width = (1.0 / s2.max(1e-12).sqrt() / t.sqrt()).min(2.0 * PI / kappa.abs().max(1e-12));
+    // law's natural frequency scale.
+    let width = width.min(2.0 * PI / kappa.abs().max(1e-12));
     let n_panels = ((upper / width).ceil() as usize).clamp(4, 4096);
     let h = upper / n_panels as f64;
     let gl = rule();

@@ -459,3 +459,74 @@ pub fn greeks(
     }
     Ok(FdGreeks { greeks, noise })
 }
+
+/// Why bump-and-reprice Greeks are not defined for `c` with these bumps,
+/// or `None` when they are.
+///
+/// When the terminal law has no spread — the row is expired (`T = 0`), or
+/// has neither diffusion nor jumps that move it (`sigma = 0` and
+/// `lambda = 0`, or jumps of size exactly 1) — the price is the discounted
+/// payoff of the forward, and with `sigma = 0` and `delta = 0` but jumps it
+/// is a sum of such payoffs over the lattice of jump counts. Each has a kink
+/// where that point of the law meets the strike; a difference whose bumps
+/// straddle the kink measures the kink, not a derivative (the analytic
+/// convention there is one-sided). This returns the reason when a point of
+/// the law lies within the reach of the bumps of the strike, in log terms:
+/// three steps of the spot bump (relative), of the rate and yield bumps
+/// times `T`, of the expiry bump times `|r - q|`, of the jump-rate bump
+/// times `|k| T` (all doubled for safety), or six standard deviations
+/// `3 h_vol sqrt(T)` of the largest vol bump, whichever is larger.
+pub fn undefined_reason(c: &Contract, cfg: &FdConfig) -> Option<String> {
+    let j = &c.jumps;
+    let t = c.expiry;
+    let point_mass =
+        t == 0.0 || (c.vol == 0.0 && (j.rate == 0.0 || (j.mean == 0.0 && j.vol == 0.0)));
+    let lattice = !point_mass && c.vol == 0.0 && j.vol == 0.0;
+    if !point_mass && !lattice {
+        return None;
+    }
+    let b = &cfg.bumps;
+    let k = j.k();
+    let mut reach = 3.0 * b.spot_rel;
+    if t > 0.0 {
+        reach = reach
+            .max(3.0 * b.rate * t)
+            .max(3.0 * b.div_yield * t)
+            .max(3.0 * b.expiry.min(0.25 * t) * (c.rate - c.div_yield).abs())
+            .max(3.0 * (b.jump_rate_rel * j.rate).max(b.jump_rate_min) * k.abs() * t);
+    }
+    // The moves of the law's points are doubled for safety; a vol bump from
+    // 0 spreads them instead, and six standard deviations of the largest
+    // bump leave a kink's effect below e^-18.
+    reach = (2.0 * reach).max(6.0 * 3.0 * b.vol * t.sqrt());
+    // ln(K/F) and the points of the law relative to F.
+    let fwd = c.forward();
+    let ratio = c.strike / fwd;
+    let x = if ratio.is_normal() {
+        ratio.ln()
+    } else {
+        c.strike.ln() - fwd.ln()
+    };
+    let x0 = if t > 0.0 { -j.rate * k * t } else { 0.0 };
+    let distance = if lattice && j.mean != 0.0 {
+        let n = ((x - x0) / j.mean).round().max(0.0);
+        (x - x0 - n * j.mean).abs()
+    } else {
+        (x - x0).abs()
+    };
+    if distance > reach {
+        return None;
+    }
+    Some(if t == 0.0 {
+        "not defined: expired row at the strike (the payoff's kink lies within the bumps)"
+            .to_string()
+    } else if lattice {
+        "not defined: zero diffusion and jump vol put a point of the terminal law at the strike \
+         (the price has a kink within the bumps)"
+            .to_string()
+    } else {
+        "not defined: zero variance with the forward at the strike (the price has a kink within \
+         the bumps)"
+            .to_string()
+    })
+}

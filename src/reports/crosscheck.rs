@@ -10,7 +10,9 @@
 //!   than failed. When the Fourier engine fails (its panel budget runs out,
 //!   or the row's scale is outside double precision for it), the Fourier
 //!   check is inconclusive with the engine's reason, and the series and
-//!   Monte Carlo results are still reported.
+//!   Monte Carlo results are still reported. A lattice law (no diffusion,
+//!   no jump vol), outside the Fourier engine's claim, makes the check
+//!   inconclusive with `fourier not applicable: ...`.
 //! - Monte Carlo agrees when `|z| <= z_max`, `z = (price_mc - price_series) / mc_stderr`.
 //!   When the simulated discounted terminal price misses its known mean by
 //!   more than 5 standard errors (martingale test), the sample is not
@@ -113,6 +115,10 @@ pub fn check(c: &Contract, key: u64, cfg: &CheckConfig) -> Result<RowCheck, Chec
     let mut fails = Vec::new();
     let mut unsure = Vec::new();
     let gap = match &fourier {
+        Err(e @ fourier::FourierError::Lattice) => {
+            unsure.push(format!("fourier not applicable: {e}"));
+            None
+        }
         Err(e) => {
             unsure.push(format!("fourier engine failed: {e}"));
             None
@@ -200,103 +206,4 @@ pub fn check(c: &Contract, key: u64, cfg: &CheckConfig) -> Result<RowCheck, Chec
         outcome,
         verdict,
     })
-}
-
-/// Book-level summary of a cross-check, built from per-row records sorted
-/// by row so that it does not depend on the processing order.
-#[derive(Debug, Clone, Default)]
-pub struct CheckSummary {
-    /// Rows checked.
-    pub rows: u64,
-    /// Rows whose verdict is `disagree`.
-    pub disagree: u64,
-    /// Rows whose verdict is `inconclusive`.
-    pub inconclusive: u64,
-    /// Mean of the defined z-scores.
-    pub z_mean: f64,
-    /// Sample standard deviation of the defined z-scores.
-    pub z_sd: f64,
-    /// Number of defined z-scores.
-    pub z_count: u64,
-    /// Share of defined z-scores with |z| <= 1.96 (about 0.95 if error bars are honest).
-    pub z_within_196: f64,
-    /// Largest |z|: (row, id, z).
-    pub worst_z: Vec<(u64, String, f64)>,
-    /// Largest relative Fourier gaps: (row, id, gap / price).
-    pub worst_fourier: Vec<(u64, String, f64)>,
-    /// Total Monte Carlo paths.
-    pub mc_paths: u64,
-}
-
-/// One row's contribution to the summary.
-#[derive(Debug, Clone)]
-pub struct SummaryRecord {
-    /// Row number.
-    pub row: u64,
-    /// Row id.
-    pub id: String,
-    /// Outcome.
-    pub outcome: Outcome,
-    /// z-score, if defined.
-    pub z: Option<f64>,
-    /// Fourier gap relative to the series price.
-    pub fourier_rel_gap: f64,
-    /// Monte Carlo paths.
-    pub paths: u64,
-}
-
-impl CheckSummary {
-    /// Builds the summary; `records` may come in any order.
-    pub fn from_records(mut records: Vec<SummaryRecord>, top: usize) -> CheckSummary {
-        records.sort_by_key(|r| r.row);
-        let mut s = CheckSummary {
-            rows: records.len() as u64,
-            ..Default::default()
-        };
-        let zs: Vec<f64> = records.iter().filter_map(|r| r.z).collect();
-        s.z_count = zs.len() as u64;
-        if !zs.is_empty() {
-            let n = zs.len() as f64;
-            s.z_mean = zs.iter().sum::<f64>() / n;
-            s.z_sd = if zs.len() > 1 {
-                (zs.iter().map(|z| (z - s.z_mean).powi(2)).sum::<f64>() / (n - 1.0)).sqrt()
-            } else {
-                0.0
-            };
-            s.z_within_196 = zs.iter().filter(|z| z.abs() <= 1.96).count() as f64 / n;
-        }
-        for r in &records {
-            match r.outcome {
-                Outcome::Disagree => s.disagree += 1,
-                Outcome::Inconclusive => s.inconclusive += 1,
-                Outcome::Agree => {}
-            }
-            s.mc_paths += r.paths;
-        }
-        let mut by_z: Vec<&SummaryRecord> = records.iter().filter(|r| r.z.is_some()).collect();
-        by_z.sort_by(|a, b| {
-            b.z.unwrap()
-                .abs()
-                .total_cmp(&a.z.unwrap().abs())
-                .then(a.row.cmp(&b.row))
-        });
-        s.worst_z = by_z
-            .iter()
-            .take(top)
-            .map(|r| (r.row, r.id.clone(), r.z.unwrap()))
-            .collect();
-        let mut by_f: Vec<&SummaryRecord> = records.iter().collect();
-        by_f.sort_by(|a, b| {
-            b.fourier_rel_gap
-                .abs()
-                .total_cmp(&a.fourier_rel_gap.abs())
-                .then(a.row.cmp(&b.row))
-        });
-        s.worst_fourier = by_f
-            .iter()
-            .take(top)
-            .map(|r| (r.row, r.id.clone(), r.fourier_rel_gap))
-            .collect();
-        s
-    }
 }
