@@ -18,7 +18,8 @@ use super::crosscheck_summary::{
     CheckAccumulator, GapBin, COVERAGE_EXPIRY, COVERAGE_MONEYNESS, EXPIRY_BINS, KEEP_FLAGGED,
     MONEYNESS_BINS, Z_BIN, Z_RANGE,
 };
-use super::html::{esc, PALETTE};
+use super::chart::LINE_COLOURS as PALETTE;
+use super::html::esc;
 use crate::normal::{norm_cdf, norm_pdf};
 use plotters::prelude::*;
 use std::fmt::Write as _;
