@@ -240,6 +240,7 @@ pub fn run(args: Args) -> Result<ExitCode> {
     let opts = PipelineOptions {
         result_columns: columns.iter().map(|s| s.to_string()).collect(),
         inputs: args.inputs.inputs()?,
+        exercise_columns: None,
     };
     let records = Mutex::new(Vec::new());
     let bar = progress(&args);

@@ -174,6 +174,7 @@ pub fn run(args: Args) -> Result<ExitCode> {
     let opts = PipelineOptions {
         result_columns: columns,
         inputs: args.inputs.inputs()?,
+        exercise_columns: None,
     };
     let flagged_rows = AtomicU64::new(0);
     let mc_cfg = McConfig {

@@ -33,6 +33,7 @@ pub mod calibrate;
 pub mod crosscheck;
 pub mod greeks;
 pub mod output;
+pub mod pide_args;
 pub mod price;
 pub mod risk;
 

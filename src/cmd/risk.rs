@@ -177,6 +177,7 @@ pub fn run(args: Args) -> Result<ExitCode> {
     let opts = PipelineOptions {
         result_columns: columns,
         inputs: args.inputs.inputs()?,
+        exercise_columns: None,
     };
     let input = open_input(&args.book)?;
     let out = BufWriter::new(
