@@ -57,15 +57,32 @@ fn writes_the_documented_columns_and_agrees() {
             "mc_stderr",
             "mc_z",
             "fourier_gap",
+            "fourier_gap_rel",
+            "fourier_error_est",
+            "mc_method",
+            "mc_paths",
+            "mc_ess",
+            "mc_hits",
             "verdict",
             "status"
         ]
     );
     for r in &rows {
-        assert_eq!(&r[16], "agree", "{r:?}");
-        assert_eq!(&r[17], "ok");
+        assert_eq!(&r[22], "agree", "{r:?}");
+        assert_eq!(&r[23], "ok");
         let z: f64 = r[14].parse().unwrap();
         assert!(z.abs() < 4.0);
+        // fourier_gap_rel is fourier_gap / price_series (README "CSV books").
+        let num = |i: usize| r[i].parse::<f64>().unwrap();
+        assert_eq!(num(16), num(15) / num(10), "{r:?}");
+        assert!(num(17) >= 0.0 && num(17) <= 1e-8 * num(10), "{r:?}");
+        assert!(["plain", "jump-count"].contains(&&r[18]), "{r:?}");
+        let (paths, hits): (u64, u64) = (r[19].parse().unwrap(), r[21].parse().unwrap());
+        assert!(hits > 0 && hits <= paths, "{r:?}");
+        assert!(
+            num(20) > 0.0 && num(20) <= paths as f64 * (1.0 + 1e-12),
+            "{r:?}"
+        );
     }
     assert!(err.contains("rows checked          4"), "{err}");
     assert!(err.contains("z-scores"), "{err}");
@@ -79,8 +96,8 @@ fn bad_rows_keep_the_status_contract() {
     );
     assert_eq!(code, Some(1));
     assert_eq!(rows.len(), 2);
-    assert_eq!(&rows[1][17], "error: line 3: strike is not a number: 'abc'");
-    assert!(rows[1][10].is_empty() && rows[1][16].is_empty());
+    assert_eq!(&rows[1][23], "error: line 3: strike is not a number: 'abc'");
+    assert!(rows[1][10].is_empty() && rows[1][22].is_empty());
 }
 
 #[test]

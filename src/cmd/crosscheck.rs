@@ -21,7 +21,12 @@ use std::time::Instant;
 #[command(after_help = concat!(
     columns_read!(),
     "Columns written: every input column echoed, then price_series, price_fourier, price_mc, \
-mc_stderr, mc_z, fourier_gap, verdict, status.\n\
+mc_stderr, mc_z, fourier_gap, fourier_gap_rel, fourier_error_est, mc_method, mc_paths, mc_ess, \
+mc_hits, verdict, status.\n\
+fourier_gap_rel is fourier_gap / price_series (empty when the series price is 0); \
+fourier_error_est is the Fourier engine's own absolute error estimate; mc_method names the \
+Monte Carlo estimator (exact at T = 0, plain, jump-count); mc_paths the paths simulated; mc_ess \
+the effective sample size of the likelihood weights; mc_hits the paths that paid, before weighting.\n\
 verdict is 'agree', 'inconclusive: <why>' (an engine could not resolve the price, e.g. no \
 in-the-money Monte Carlo paths, or the Fourier engine failed: price_fourier and fourier_gap \
 are then empty) or 'disagree: <why>'.\n\
@@ -234,6 +239,12 @@ pub fn run(args: Args) -> Result<ExitCode> {
         "mc_stderr",
         "mc_z",
         "fourier_gap",
+        "fourier_gap_rel",
+        "fourier_error_est",
+        "mc_method",
+        "mc_paths",
+        "mc_ess",
+        "mc_hits",
         "verdict",
         "status",
     ];
@@ -265,6 +276,18 @@ pub fn run(args: Args) -> Result<ExitCode> {
             Some(g) => out.push_f64(g),
             None => out.push_empty(1),
         }
+        match r.fourier_gap {
+            Some(g) if r.price_series > 0.0 => out.push_f64(g / r.price_series),
+            _ => out.push_empty(1),
+        }
+        match r.fourier {
+            Some(f) => out.push_f64(f.error_estimate),
+            None => out.push_empty(1),
+        }
+        out.push_str(r.mc.method.as_str());
+        out.push_u64(r.mc.paths);
+        out.push_f64(r.mc.ess);
+        out.push_u64(r.mc.hits);
         out.push_str(&r.verdict);
         if out.non_finite().is_some() {
             return Ok(()); // the pipeline fails the row; keep it out of the summary

@@ -171,9 +171,34 @@ impl Default for McConfig {
     }
 }
 
+/// Which estimator produced a Monte Carlo price (the `mc_method` column).
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+#[non_exhaustive]
+pub enum McMethod {
+    /// No simulation: the payoff at `T = 0`, exact.
+    Exact,
+    /// Plain sampling of the jump count (intensity multiplier 1, no shift).
+    Plain,
+    /// Importance sampling of the jump count (and, optionally, of the jump-size mean).
+    JumpCount,
+}
+
+impl McMethod {
+    /// The name written in reports.
+    pub fn as_str(self) -> &'static str {
+        match self {
+            McMethod::Exact => "exact",
+            McMethod::Plain => "plain",
+            McMethod::JumpCount => "jump-count",
+        }
+    }
+}
+
 /// A Monte Carlo price with its error bars and diagnostics.
 #[derive(Debug, Clone, Copy, PartialEq)]
 pub struct McEstimate {
+    /// The estimator used.
+    pub method: McMethod,
     /// The estimate.
     pub price: f64,
     /// Its standard error.
@@ -621,6 +646,7 @@ pub fn price(c: &Contract, key: u64, cfg: &McConfig) -> McEstimate {
     if c.expiry == 0.0 {
         let p = c.kind.payoff(c.spot, c.strike);
         return McEstimate {
+            method: McMethod::Exact,
             price: p,
             std_error: 0.0,
             ci95: (p, p),
@@ -689,7 +715,13 @@ pub fn price(c: &Contract, key: u64, cfg: &McConfig) -> McEstimate {
     } else {
         f64::INFINITY
     };
+    let method = if gamma == 1.0 && cfg.jump_mean_shift == 0.0 {
+        McMethod::Plain
+    } else {
+        McMethod::JumpCount
+    };
     McEstimate {
+        method,
         price: p,
         std_error: se,
         ci95: (p - 1.96 * se, p + 1.96 * se),
