@@ -1,5 +1,5 @@
 //! `--pide-tol`, shared by every command that can price American rows
-//! (`price`, `crosscheck`, `greeks`, `risk`): the PIDE engine's requested
+//! (`price`, `greeks`, `risk`; `crosscheck` has a looser default): the PIDE engine's requested
 //! absolute error as a fraction of spot, validated into a [`PideConfig`]
 //! before any work starts.
 
@@ -27,11 +27,18 @@ impl PideArgs {
     /// # Errors
     /// A tolerance outside [`PIDE_TOL_RANGE`].
     pub fn config(&self) -> Result<PideConfig> {
-        let (lo, hi) = PIDE_TOL_RANGE;
-        let t = self.pide_tol;
-        if !(t >= lo && t <= hi) {
-            bail!("--pide-tol must be between {lo:e} and {hi:e} (a fraction of spot), got {t}");
-        }
-        Ok(PideConfig { tol_spot: t })
+        pide_config(self.pide_tol)
     }
+}
+
+/// A validated `--pide-tol` (`crosscheck` has its own default).
+///
+/// # Errors
+/// A tolerance outside [`PIDE_TOL_RANGE`].
+pub fn pide_config(t: f64) -> Result<PideConfig> {
+    let (lo, hi) = PIDE_TOL_RANGE;
+    if !(t >= lo && t <= hi) {
+        bail!("--pide-tol must be between {lo:e} and {hi:e} (a fraction of spot), got {t}");
+    }
+    Ok(PideConfig { tol_spot: t })
 }
