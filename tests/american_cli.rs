@@ -277,3 +277,98 @@ fn issue12_a_book_without_exercise_is_written_as_before() {
         assert_eq!(a, &drop(&h2, b));
     }
 }
+
+fn run_crosscheck(book: &str) -> (Vec<String>, Vec<Vec<String>>, Option<i32>) {
+    let out = saltus()
+        .args(["crosscheck", "-", "--paths", "20000", "-q"])
+        .write_stdin(book.to_string())
+        .output()
+        .unwrap();
+    let (h, rows) = read_csv(String::from_utf8(out.stdout).unwrap());
+    (h, rows, out.status.code())
+}
+
+#[test]
+fn issue12_crosscheck_verdicts_on_european_and_american_rows() {
+    let book = format!(
+        "id,kind,spot,strike,expiry,rate,vol,jump_rate,jump_mean,jump_vol,div_yield,exercise\n\
+         am-put,put,100,{DFV},0,american\n\
+         am-call,call,100,{DFV},0,American\n\
+         eu-put,put,100,{DFV},0,european\n\
+         many-jumps,call,100,100,1,0.01,0.2,60,-0.01,0.01,0,european\n\
+         tiny-t,call,100,100,1e-300,0.01,0.2,1,-0.1,0.1,0,\n\
+         far-strike,call,1e-300,1,1,0.01,0.2,1,-0.1,0.1,0,american\n"
+    );
+    let (h, rows, code) = run_crosscheck(&book);
+    assert_eq!(code, Some(0), "{rows:?}");
+    let v = |r: usize| rows[r][col(&h, "verdict")].clone();
+    let put = contract(
+        OptionKind::Put,
+        100.0,
+        100.0,
+        0.25,
+        0.05,
+        0.0,
+        0.15,
+        [0.1, -0.9, 0.45],
+    );
+    let euro = series::price(&put).unwrap().greeks.price;
+    // American rows: PIDE convergence and the bounds; no Fourier or MC.
+    assert!(
+        v(0).starts_with("agree: American, by PIDE grid convergence (estimate "),
+        "{}",
+        v(0)
+    );
+    assert!(
+        v(0).contains(">= European series, >= intrinsic)"),
+        "{}",
+        v(0)
+    );
+    assert_eq!(f(&rows, &h, 0, "price_series"), euro);
+    let am = f(&rows, &h, 0, "price_pide");
+    // d'Halluin, Forsyth & Vetzal (2005) put, about 3.2412435 (from
+    // memory), within the crosscheck tolerance 1e-5 x spot.
+    assert!((am - 3.2412435).abs() <= 1e-3, "{am}");
+    assert!(f(&rows, &h, 0, "pide_error_est") <= 1e-3);
+    for c in [
+        "price_fourier",
+        "price_mc",
+        "mc_z",
+        "fourier_gap",
+        "mc_method",
+        "pide_gap",
+    ] {
+        assert_eq!(rows[0][col(&h, c)], "", "{c}");
+    }
+    // Merton (1973): the verdict names the equality it checked.
+    assert!(
+        v(1).contains("= European call as q = 0 and r >= 0"),
+        "{}",
+        v(1)
+    );
+    // The European row: four engines agree; the PIDE within its estimate.
+    assert_eq!(v(2), "agree");
+    let gap = f(&rows, &h, 2, "pide_gap");
+    assert_eq!(gap, f(&rows, &h, 2, "price_pide") - euro);
+    assert!(gap.abs() <= f(&rows, &h, 2, "pide_error_est"));
+    // Beyond the PIDE's reach: inconclusive with the reason, row kept ok.
+    assert!(
+        v(3).contains("pide not run: lambda T = 6.000e1 beyond its reach (50)"),
+        "{}",
+        v(3)
+    );
+    assert!(
+        v(4).contains("pide not run: expiry 1.0e-300 below its reach"),
+        "{}",
+        v(4)
+    );
+    assert!(
+        v(5).starts_with("inconclusive: American, pide not run: ln(S/K)"),
+        "{}",
+        v(5)
+    );
+    for r in 3..6 {
+        assert_eq!(rows[r][col(&h, "status")], "ok");
+        assert_eq!(rows[r][col(&h, "price_pide")], "");
+    }
+}

@@ -27,8 +27,8 @@
 //! - The PIDE (European exercise, [`CheckConfig::pide`]) agrees when
 //!   `|price_pide - price_series| <= pide_error_est + ABS_FLOOR * spot`:
 //!   the gap is judged against the PIDE's own error estimate. A row outside
-//!   the PIDE's reach ([`pide_reach`]: huge `lambda T`, an expiry or a
-//!   moneyness the grid cannot resolve) or one where the engine does not
+//!   the PIDE's reach ([`pide_reach`]: huge `lambda T`, a huge spread of
+//!   `ln S_T`, an expiry or a moneyness the grid cannot resolve) or one where the engine does not
 //!   reach its tolerance within [`PIDE_MAX_WORK`] is inconclusive for the
 //!   PIDE, with the reason; the other engines still decide.
 //! - The row's verdict is `disagree: ...` if any check fails, `inconclusive: ...`
@@ -71,6 +71,10 @@ pub const PIDE_MAX_JUMPS: f64 = 50.0;
 /// its asymptote to many digits and the grid (centred on the spot, six
 /// standard deviations wide) does not reach the strike.
 pub const PIDE_MAX_MONEYNESS_SD: f64 = 12.0;
+/// Largest standard deviation of `ln S_T` the cross-check's PIDE
+/// attempts: beyond it the grid spans more than `e^{+-30}` of the spot and
+/// its spacing cannot resolve the strike region within the work cap.
+pub const PIDE_MAX_SD: f64 = 5.0;
 /// Shortest expiry (years) the cross-check's PIDE attempts, about 30
 /// seconds: below it the one-step law is narrower than any grid worth
 /// solving.
@@ -127,6 +131,11 @@ pub fn pide_reach(c: &Contract) -> Option<String> {
     }
     let j = &c.jumps;
     let sd = ((c.vol * c.vol + j.rate * (j.mean * j.mean + j.vol * j.vol)) * c.expiry).sqrt();
+    if sd > PIDE_MAX_SD {
+        return Some(format!(
+            "pide not run: the standard deviation of ln S_T, {sd:.3e}, is beyond its reach ({PIDE_MAX_SD})"
+        ));
+    }
     let m = (c.spot / c.strike).ln();
     if !m.is_finite() || m.abs() > PIDE_MAX_MONEYNESS_SD * sd.max(1.0) {
         return Some(format!(
