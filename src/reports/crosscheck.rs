@@ -136,7 +136,8 @@ pub fn pide_reach(c: &Contract) -> Option<String> {
             "pide not run: the standard deviation of ln S_T, {sd:.3e}, is beyond its reach ({PIDE_MAX_SD})"
         ));
     }
-    let m = (c.spot / c.strike).ln();
+    // Each logarithm separately: S / K itself may overflow.
+    let m = c.spot.ln() - c.strike.ln();
     if !m.is_finite() || m.abs() > PIDE_MAX_MONEYNESS_SD * sd.max(1.0) {
         return Some(format!(
             "pide not run: ln(S/K) = {m:.3e} beyond its reach ({PIDE_MAX_MONEYNESS_SD} sd of ln S_T)"
