@@ -372,3 +372,152 @@ fn issue12_crosscheck_verdicts_on_european_and_american_rows() {
         assert_eq!(rows[r][col(&h, "price_pide")], "");
     }
 }
+
+#[test]
+fn issue12_greeks_reprice_american_rows_with_the_pide() {
+    // American rows: the finite differences of American PIDE prices must
+    // find the PIDE grid's own delta, gamma and theta (two independent
+    // routes to the same derivative); --engine pide on a European row: the
+    // finite differences of European PIDE prices against the series'
+    // closed-form Greeks (the analytic reference).
+    let book = format!(
+        "id,kind,spot,strike,expiry,rate,vol,jump_rate,jump_mean,jump_vol,exercise\n\
+         am,put,100,{DFV},american\n\
+         eu,put,100,{DFV},european\n"
+    );
+    let out = saltus()
+        .args([
+            "greeks",
+            "-",
+            "--engine",
+            "pide",
+            "--pide-tol",
+            "1e-5",
+            "-q",
+        ])
+        .write_stdin(book)
+        .output()
+        .unwrap();
+    let (h, rows) = read_csv(String::from_utf8(out.stdout).unwrap());
+    assert_eq!(out.status.code(), Some(0), "{rows:?}");
+    for g in ["delta", "gamma", "theta"] {
+        assert_eq!(rows[0][col(&h, &format!("{g}_flag"))], "ok", "{g}");
+        assert_eq!(rows[1][col(&h, &format!("{g}_flag"))], "ok", "{g}");
+    }
+    // No closed form for the others on the American row: fd only.
+    for g in ["vega", "rho", "d_jump_rate", "vanna"] {
+        assert_eq!(rows[0][col(&h, &format!("{g}_analytic"))], "", "{g}");
+        assert_eq!(rows[0][col(&h, &format!("{g}_flag"))], "", "{g}");
+        assert!(f(&rows, &h, 0, &format!("{g}_fd")).is_finite());
+        assert_eq!(rows[1][col(&h, &format!("{g}_flag"))], "ok", "{g}");
+    }
+    // An American put is worth at least the European one, and its delta
+    // is negative (Merton 1973 bounds).
+    assert!(f(&rows, &h, 0, "price") >= f(&rows, &h, 1, "price"));
+    assert!(f(&rows, &h, 0, "delta_fd") < 0.0);
+    // --method analytic on an American row: grid values and a warning.
+    let book = format!("{HEADER},exercise\nput,100,{DFV},american\n");
+    let out = saltus()
+        .args([
+            "greeks",
+            "-",
+            "--method",
+            "analytic",
+            "--pide-tol",
+            "1e-5",
+            "-q",
+        ])
+        .write_stdin(book)
+        .output()
+        .unwrap();
+    let (h, rows) = read_csv(String::from_utf8(out.stdout).unwrap());
+    assert_eq!(out.status.code(), Some(1));
+    assert!(rows[0][col(&h, "status")]
+        .starts_with("warning: line 2: American exercise has no closed form"));
+    assert_eq!(rows[0][col(&h, "vega")], "");
+    assert!(f(&rows, &h, 0, "gamma") > 0.0);
+}
+
+#[test]
+fn issue12_risk_revalues_american_rows_with_the_pide() {
+    // The scenario P&L of an American row is the library PIDE's change of
+    // value times the position (full revaluation), and positions.csv holds
+    // the price `price` writes.
+    let book = format!(
+        "id,underlying,kind,spot,strike,expiry,rate,vol,jump_rate,jump_mean,jump_vol,quantity,exercise\n\
+         am,KORVANTIS,put,100,{DFV},3,american\n"
+    );
+    let dir = tempfile::tempdir().unwrap();
+    let bookf = dir.path().join("book.csv");
+    std::fs::write(&bookf, &book).unwrap();
+    let rep = dir.path().join("rep");
+    let out = saltus()
+        .args([
+            "risk",
+            "--spot-shocks",
+            "-10,0",
+            "--vol-shocks",
+            "0",
+            "--pide-tol",
+            "1e-5",
+            "-q",
+        ])
+        .arg(&bookf)
+        .arg("-o")
+        .arg(&rep)
+        .output()
+        .unwrap();
+    assert_eq!(
+        out.status.code(),
+        Some(0),
+        "{}",
+        String::from_utf8_lossy(&out.stderr)
+    );
+    let cfg = PideConfig { tol_spot: 1e-5 };
+    let at = |s: f64| {
+        let c = contract(
+            OptionKind::Put,
+            s,
+            100.0,
+            0.25,
+            0.05,
+            0.0,
+            0.15,
+            [0.1, -0.9, 0.45],
+        );
+        pide::price(&c, Exercise::American, &cfg).unwrap().price
+    };
+    let (h, cells) = read_csv(std::fs::read(rep.join("scenarios.csv")).unwrap());
+    let pnl = |shock: &str| {
+        cells
+            .iter()
+            .find(|r| r[col(&h, "level")] == "underlying" && r[col(&h, "spot_shock")] == shock)
+            .map(|r| r[col(&h, "pnl")].parse::<f64>().unwrap())
+            .unwrap()
+    };
+    assert_eq!(pnl("0.0"), 0.0);
+    let base = american::price(
+        &contract(
+            OptionKind::Put,
+            100.0,
+            100.0,
+            0.25,
+            0.05,
+            0.0,
+            0.15,
+            [0.1, -0.9, 0.45],
+        ),
+        &cfg,
+    )
+    .unwrap()
+    .greeks
+    .price;
+    let want = 3.0 * (at(90.0) - base);
+    assert!(
+        (pnl("-0.1") - want).abs() <= 1e-12 * want.abs(),
+        "{} vs {want}",
+        pnl("-0.1")
+    );
+    let (ph, pos) = read_csv(std::fs::read(rep.join("positions.csv")).unwrap());
+    assert_eq!(pos[0][col(&ph, "price")].parse::<f64>().unwrap(), base);
+}

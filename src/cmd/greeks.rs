@@ -12,8 +12,8 @@ use super::{open_input, report_rows};
 use anyhow::{bail, Result};
 use saltus::book::{run_book, PipelineOptions, StreamKeys};
 use saltus::engines::monte_carlo::{McConfig, Work, MAX_PATHS};
-use saltus::engines::series;
 use saltus::engines::pide::{self, Exercise, PideEngine};
+use saltus::engines::series;
 use saltus::engines::{FourierEngine, PricingEngine, SeriesEngine};
 use saltus::greeks::finite_diff::{self, FdConfig};
 use saltus::greeks::SENSITIVITY_NAMES;
@@ -404,7 +404,8 @@ fn american_row(
                 };
                 debug_assert!(GRID_GREEKS.contains(&i));
                 let diff = gf - ga;
-                let tol = rel_tol * ga.abs() + floor(SENSITIVITY_NAMES[i], c.spot) + noise + grid_err;
+                let tol =
+                    rel_tol * ga.abs() + floor(SENSITIVITY_NAMES[i], c.spot) + noise + grid_err;
                 let bad = diff.is_nan() || diff.abs() > tol;
                 out.push_f64(ga);
                 out.push_f64(gf);

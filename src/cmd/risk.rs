@@ -10,6 +10,7 @@ use super::output::OutputDir;
 use super::{open_input, report_rows};
 use anyhow::{anyhow, bail, Context, Result};
 use saltus::book::{run_book_with_state, PipelineOptions};
+use saltus::engines::pide::Exercise;
 use saltus::engines::series;
 use saltus::greeks::DESK_COLUMNS;
 use saltus::reports::risk::{self, PositionRef, RiskAccumulator, ScenarioSpec};
@@ -53,6 +54,8 @@ status\n  \
 scenario_failures.csv  line, id, underlying, scenario, spot_shock, vol_shock, jump_size, reason: every \
 scenario revaluation that failed\n  \
 report.html            all of the above with SVG charts, self-contained\n\
+American rows (column exercise) are priced as by price (the PIDE, to --pide-tol) and revalued \
+by the PIDE in every scenario (about 130 PIDE prices per row with the default shocks: slow).\n\
 Positions are quantity x multiplier (optional columns, default 1) and grouped by `underlying`.\n\
 level is `underlying` or `book`; the book row's underlying field reads (book), so use level to tell it \
 from an underlying of that name. Book-row delta and gamma are empty (units differ across underlyings).\n\
@@ -97,6 +100,8 @@ pub struct Args {
     pub title: String,
     #[command(flatten)]
     pub inputs: super::book_inputs::BookInputArgs,
+    #[command(flatten)]
+    pub pide: super::pide_args::PideArgs,
     /// No summary on stderr.
     #[arg(short, long)]
     pub quiet: bool,
@@ -166,6 +171,7 @@ fn scenario_spec(args: &Args) -> Result<ScenarioSpec> {
 pub fn run(args: Args) -> Result<ExitCode> {
     let start = Instant::now();
     let spec = scenario_spec(&args)?;
+    let pide_cfg = args.pide.config()?;
     // Everything is written into a staging directory, swapped in at the end.
     let staged = OutputDir::stage(&args.output, &args.book, &REPORT_FILES)?;
     let out_dir = staged.path().to_path_buf();
@@ -195,9 +201,15 @@ pub fn run(args: Args) -> Result<ExitCode> {
         out,
         &opts,
         |row, w, acc: &mut RiskAccumulator| {
-            let g = series::price(&row.contract)
-                .map_err(|e| e.to_string())?
-                .greeks;
+            let american = (row.exercise == Exercise::American).then_some(pide_cfg);
+            let g = match american {
+                Some(cfg) => saltus::greeks::american::price(&row.contract, &cfg)?.greeks,
+                None => {
+                    series::price(&row.contract)
+                        .map_err(|e| e.to_string())?
+                        .greeks
+                }
+            };
             let id = row.id();
             let p = PositionRef {
                 row: row.row,
@@ -207,6 +219,7 @@ pub fn run(args: Args) -> Result<ExitCode> {
                 contract: row.contract,
                 weight: row.quantity * row.multiplier,
                 greeks: g,
+                american,
             };
             // Every value written below is checked finite first, so the row
             // is either an error here or counted in full.

@@ -37,7 +37,9 @@
 
 use crate::book::pipeline::CHUNK_ROWS;
 use crate::book::{ChunkState, FailedRecord};
-use crate::engines::series;
+use crate::engines::pide::{self, Exercise, PideConfig, PideEngine};
+use crate::engines::{series, Priced};
+use crate::greeks::finite_diff::{self, FdConfig};
 use crate::greeks::{Greeks, DAYS_PER_YEAR, DESK_COLUMNS};
 use crate::model::Contract;
 use std::collections::BTreeMap;
@@ -92,6 +94,7 @@ impl Position {
             contract: self.contract,
             weight: self.weight(),
             greeks: self.greeks,
+            american: None,
         }
     }
 }
@@ -113,6 +116,9 @@ pub struct PositionRef<'a> {
     pub weight: f64,
     /// Analytic price and Greeks per unit.
     pub greeks: Greeks,
+    /// `Some(settings)`: American exercise, revalued in every scenario by
+    /// the PIDE with these settings; `None`: European, by the series.
+    pub american: Option<PideConfig>,
 }
 
 /// Aggregated exposure of a set of positions, in desk units.
@@ -663,7 +669,12 @@ struct RowScenarios {
     k: f64,
 }
 
-fn revalue(c: &Contract, spot_shock: f64, vol_shock: f64) -> Result<Greeks, String> {
+fn revalue(
+    c: &Contract,
+    american: Option<&PideConfig>,
+    spot_shock: f64,
+    vol_shock: f64,
+) -> Result<Greeks, String> {
     let shocked = Contract::new(
         c.kind,
         c.spot * (1.0 + spot_shock),
@@ -675,9 +686,47 @@ fn revalue(c: &Contract, spot_shock: f64, vol_shock: f64) -> Result<Greeks, Stri
         c.jumps,
     )
     .map_err(|e| format!("shocked contract: {e}"))?;
-    series::price(&shocked)
-        .map(|r| r.greeks)
-        .map_err(|e| format!("series engine: {e}"))
+    match american {
+        Some(cfg) => revalue_american(&shocked, cfg, vol_shock == 0.0),
+        None => series::price(&shocked)
+            .map(|r| r.greeks)
+            .map_err(|e| format!("series engine: {e}")),
+    }
+}
+
+/// An American revaluation by the PIDE, as `price` values the row (at least
+/// the European series value): price, delta, gamma and theta from the grid; vega (central difference of PIDE prices) only when `vega` is
+/// asked for, since only the unshocked-vol cells feed the Greeks-against-
+/// spot curve; the other Greeks are not used by the scenarios (0).
+fn revalue_american(c: &Contract, cfg: &PideConfig, vega: bool) -> Result<Greeks, String> {
+    let r = pide::price(c, Exercise::American, cfg).map_err(|e| format!("PIDE engine: {e}"))?;
+    let vega = if vega {
+        let engine = PideEngine {
+            exercise: Exercise::American,
+            config: *cfg,
+        };
+        let base = Priced {
+            price: r.price,
+            error: r.error_estimate,
+        };
+        let fd = FdConfig::for_engine(&engine);
+        finite_diff::first_derivatives(&engine, c, base, &fd, &[crate::model::Param::Vol])?[0].0
+    } else {
+        0.0
+    };
+    // As `price` writes it: never below the European value (a theorem).
+    let european = series::price(c)
+        .map_err(|e| format!("series engine (European value): {e}"))?
+        .greeks
+        .price;
+    Ok(Greeks {
+        price: r.price.max(european),
+        delta: r.delta,
+        gamma: r.gamma,
+        vega,
+        theta: r.theta,
+        ..Greeks::default()
+    })
 }
 
 /// Accumulated risk of part of a book (one chunk while streaming) or of the
@@ -739,7 +788,7 @@ impl RiskAccumulator {
         for &s in &spec.spot_shocks {
             let mut at_zero = None;
             for (j, &v) in spec.vol_shocks.iter().enumerate() {
-                let g = revalue(c, s, v);
+                let g = revalue(c, p.american.as_ref(), s, v);
                 if Some(j) == zero_vol {
                     at_zero = Some(g.clone());
                 }
@@ -757,7 +806,7 @@ impl RiskAccumulator {
                     }
                 }
             }
-            let g = at_zero.unwrap_or_else(|| revalue(c, s, 0.0));
+            let g = at_zero.unwrap_or_else(|| revalue(c, p.american.as_ref(), s, 0.0));
             let point = g.and_then(|g| {
                 let spot = c.spot * (1.0 + s);
                 let point = (
@@ -785,7 +834,7 @@ impl RiskAccumulator {
             .chain(spec.jump_shocks.iter().copied())
             .enumerate()
         {
-            match pnl(revalue(c, size, 0.0)) {
+            match pnl(revalue(c, p.american.as_ref(), size, 0.0)) {
                 Ok(x) => jumps.push(Some(x)),
                 Err(reason) => {
                     jumps.push(None);
