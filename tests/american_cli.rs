@@ -4,35 +4,17 @@
 //! exercise, bad `exercise` values, determinism across thread counts, and
 //! books without the column written exactly as before.
 
-use crate::common::{col, read_csv, saltus, HEADER};
+use crate::common::{col, merton, read_csv, saltus, HEADER};
 use saltus::engines::pide::{self, Exercise, PideConfig};
 use saltus::engines::series;
 use saltus::greeks::american;
-use saltus::model::{Contract, JumpParams, OptionKind};
+use saltus::model::OptionKind;
 
 /// The d'Halluin, Forsyth & Vetzal (2005) jump set: K = 100, T = 0.25,
 /// r = 0.05, sigma = 0.15, lambda = 0.1, mu_J = -0.9, delta = 0.45.
 const DFV: &str = "100,0.25,0.05,0.15,0.1,-0.9,0.45";
 
-fn contract(
-    kind: OptionKind,
-    s: f64,
-    k: f64,
-    t: f64,
-    r: f64,
-    q: f64,
-    v: f64,
-    j: [f64; 3],
-) -> Contract {
-    let jumps = JumpParams {
-        rate: j[0],
-        mean: j[1],
-        vol: j[2],
-    };
-    Contract::new(kind, s, k, t, r, q, v, jumps).unwrap()
-}
-
-/// A small American book (invented names), header in a shuffled order.
+/// A small American book (invented names).
 fn book() -> String {
     format!(
         "id,kind,spot,strike,expiry,rate,vol,jump_rate,jump_mean,jump_vol,div_yield,exercise\n\
@@ -90,7 +72,7 @@ fn issue12_american_rows_price_like_the_library_pide_on_any_thread_count() {
     assert_eq!((&h, &rows), (&h2, &rows2));
 
     let cfg = PideConfig::default();
-    let put = contract(
+    let put = merton(
         OptionKind::Put,
         100.0,
         100.0,
@@ -98,7 +80,9 @@ fn issue12_american_rows_price_like_the_library_pide_on_any_thread_count() {
         0.05,
         0.0,
         0.15,
-        [0.1, -0.9, 0.45],
+        0.1,
+        -0.9,
+        0.45,
     );
     let lib = pide::price(&put, Exercise::American, &cfg).unwrap();
     let euro = series::price(&put).unwrap().greeks;
@@ -130,7 +114,7 @@ fn issue12_american_rows_price_like_the_library_pide_on_any_thread_count() {
     assert!(f(&rows, &h, 2, "early_exercise_premium") > 1e-3);
     // Merton (1973): an American call without dividends at r >= 0 is worth
     // the European call: equal to the series within the PIDE's estimate.
-    let call = contract(
+    let call = merton(
         OptionKind::Call,
         100.0,
         100.0,
@@ -138,7 +122,9 @@ fn issue12_american_rows_price_like_the_library_pide_on_any_thread_count() {
         0.05,
         0.0,
         0.15,
-        [0.1, -0.9, 0.45],
+        0.1,
+        -0.9,
+        0.45,
     );
     let euro_call = series::price(&call).unwrap().greeks;
     let am_call = f(&rows, &h, 1, "price");
@@ -164,7 +150,7 @@ fn issue12_bumped_greeks_of_a_call_without_dividends_are_the_european_ones() {
     // finite differences of PIDE prices must find them within their noise
     // (the PIDE error estimate over the bump) plus the central-difference
     // truncation (1e-3 relative, common practice for h = 1e-2 bumps).
-    let c = contract(
+    let c = merton(
         OptionKind::Call,
         100.0,
         95.0,
@@ -172,7 +158,9 @@ fn issue12_bumped_greeks_of_a_call_without_dividends_are_the_european_ones() {
         0.04,
         0.0,
         0.25,
-        [0.5, -0.2, 0.15],
+        0.5,
+        -0.2,
+        0.15,
     );
     let a = american::price(&c, &PideConfig::default()).unwrap();
     let g = series::price(&c).unwrap().greeks;
@@ -302,7 +290,7 @@ fn issue12_crosscheck_verdicts_on_european_and_american_rows() {
     let (h, rows, code) = run_crosscheck(&book);
     assert_eq!(code, Some(0), "{rows:?}");
     let v = |r: usize| rows[r][col(&h, "verdict")].clone();
-    let put = contract(
+    let put = merton(
         OptionKind::Put,
         100.0,
         100.0,
@@ -310,7 +298,9 @@ fn issue12_crosscheck_verdicts_on_european_and_american_rows() {
         0.05,
         0.0,
         0.15,
-        [0.1, -0.9, 0.45],
+        0.1,
+        -0.9,
+        0.45,
     );
     let euro = series::price(&put).unwrap().greeks.price;
     // American rows: PIDE convergence and the bounds; no Fourier or MC.
@@ -367,9 +357,9 @@ fn issue12_crosscheck_verdicts_on_european_and_american_rows() {
         "{}",
         v(5)
     );
-    for r in 3..6 {
-        assert_eq!(rows[r][col(&h, "status")], "ok");
-        assert_eq!(rows[r][col(&h, "price_pide")], "");
+    for row in &rows[3..6] {
+        assert_eq!(row[col(&h, "status")], "ok");
+        assert_eq!(row[col(&h, "price_pide")], "");
     }
 }
 
@@ -475,7 +465,7 @@ fn issue12_risk_revalues_american_rows_with_the_pide() {
     );
     let cfg = PideConfig { tol_spot: 1e-5 };
     let at = |s: f64| {
-        let c = contract(
+        let c = merton(
             OptionKind::Put,
             s,
             100.0,
@@ -483,7 +473,9 @@ fn issue12_risk_revalues_american_rows_with_the_pide() {
             0.05,
             0.0,
             0.15,
-            [0.1, -0.9, 0.45],
+            0.1,
+            -0.9,
+            0.45,
         );
         pide::price(&c, Exercise::American, &cfg).unwrap().price
     };
@@ -497,7 +489,7 @@ fn issue12_risk_revalues_american_rows_with_the_pide() {
     };
     assert_eq!(pnl("0.0"), 0.0);
     let base = american::price(
-        &contract(
+        &merton(
             OptionKind::Put,
             100.0,
             100.0,
@@ -505,7 +497,9 @@ fn issue12_risk_revalues_american_rows_with_the_pide() {
             0.05,
             0.0,
             0.15,
-            [0.1, -0.9, 0.45],
+            0.1,
+            -0.9,
+            0.45,
         ),
         &cfg,
     )
