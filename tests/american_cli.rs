@@ -191,7 +191,8 @@ fn issue12_bad_exercise_values_are_row_errors_naming_line_and_column() {
          put,100,100,0,0.05,0.2,0,0,0,\"american,\"\n\
          put,100,100,0,0.05,0.2,0,0,0, Europe\n\
          put,90,100,0,0.05,0.2,0,0,0,American\n\
-         put,90,100,0,0.05,0.2,0,0,0,EUROPEAN\n"
+         put,90,100,0,0.05,0.2,0,0,0,EUROPEAN\n\
+         put,100,100,1,0.05,0.2,60,-0.01,0.01,american\n"
     );
     let (h, rows, code) = run_price(&book, &[]);
     assert_eq!(code, Some(1));
@@ -211,6 +212,11 @@ fn issue12_bad_exercise_values_are_row_errors_naming_line_and_column() {
     assert_eq!(
         status(3),
         "error: line 5: exercise 'Europe' is not european or american"
+    );
+    // Beyond the PIDE's reach: refused at once, saying which limit.
+    assert_eq!(
+        status(6),
+        "error: line 8: American exercise: lambda T = 6.000e1 is beyond the PIDE's reach (at most 50)"
     );
     // Failed rows keep empty results.
     assert_eq!(rows[0][col(&h, "price")], "");
@@ -343,12 +349,12 @@ fn issue12_crosscheck_verdicts_on_european_and_american_rows() {
     assert!(gap.abs() <= f(&rows, &h, 2, "pide_error_est"));
     // Beyond the PIDE's reach: inconclusive with the reason, row kept ok.
     assert!(
-        v(3).contains("pide not run: lambda T = 6.000e1 beyond its reach (50)"),
+        v(3).contains("pide not run: lambda T = 6.000e1 is beyond the PIDE's reach (at most 50)"),
         "{}",
         v(3)
     );
     assert!(
-        v(4).contains("pide not run: expiry 1.0e-300 below its reach"),
+        v(4).contains("pide not run: expiry 1.0e-300 is below the PIDE's reach"),
         "{}",
         v(4)
     );

@@ -33,7 +33,7 @@ the effective sample size of the likelihood weights; mc_hits the paths that paid
 price_pide is the European PIDE price (a fourth independent engine, to --pide-tol), pide_gap \
 price_pide - price_series, pide_error_est the PIDE's own error estimate; the PIDE agrees when \
 |pide_gap| <= pide_error_est. Rows outside its reach (lambda T above 50, a standard deviation \
-of ln S_T above 5, expiry below 1e-6 years, ln(S/K) beyond 12 standard deviations) or needing more than 1e7 node-steps are inconclusive for it.\n\
+of ln S_T above 5, expiry below 1e-6 years, |ln(S/K)| beyond 12 x max(1, sd of ln S_T)) or needing more than 1e7 node-steps are inconclusive for it.\n\
 American rows (column exercise) are checked by PIDE grid convergence and the bounds of early \
 exercise (>= European series, >= intrinsic, = European for a call with q = 0 and r >= 0): \
 price_series is the European series price, price_pide the American PIDE price, pide_gap empty, \

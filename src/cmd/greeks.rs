@@ -357,6 +357,9 @@ fn american_row(
     fd: impl Fn() -> Result<finite_diff::FdGreeks, String>,
     flagged_rows: &AtomicU64,
 ) -> Result<(), String> {
+    if let Some(why) = saltus::greeks::american::pide_reach(c) {
+        return Err(format!("American exercise: {why}"));
+    }
     let grid = pide::price(c, Exercise::American, cfg).map_err(|e| format!("PIDE engine: {e}"))?;
     let reference = |i: usize| match i {
         0 => Some((grid.delta, grid.greek_errors[0])),

@@ -27,7 +27,7 @@
 //! - The PIDE (European exercise, [`CheckConfig::pide`]) agrees when
 //!   `|price_pide - price_series| <= pide_error_est + ABS_FLOOR * spot`:
 //!   the gap is judged against the PIDE's own error estimate. A row outside
-//!   the PIDE's reach ([`pide_reach`]: huge `lambda T`, a huge spread of
+//!   the PIDE's reach ([`pide_reach`](crate::greeks::american::pide_reach): huge `lambda T`, a huge spread of
 //!   `ln S_T`, an expiry or a moneyness the grid cannot resolve) or one where the engine does not
 //!   reach its tolerance within [`PIDE_MAX_WORK`] is inconclusive for the
 //!   PIDE, with the reason; the other engines still decide.
@@ -45,6 +45,7 @@ use crate::engines::fourier::{self, FourierResult};
 use crate::engines::monte_carlo::{self, McConfig, McEstimate};
 use crate::engines::pide::{self, Exercise, PideConfig};
 use crate::engines::series;
+use crate::greeks::american::pide_reach;
 use crate::model::Contract;
 
 /// Smallest number of in-the-money Monte Carlo paths for a verdict.
@@ -62,24 +63,6 @@ pub const CROSSCHECK_PIDE_TOL: f64 = 1e-5;
 /// level): about a second per row; a row that needs more is inconclusive
 /// for the PIDE rather than slow.
 pub const PIDE_MAX_WORK: f64 = 1e7;
-/// Largest `lambda T` the cross-check's PIDE attempts: beyond it the
-/// fixed-point iteration of the jump term contracts slowly and the grid
-/// must span many jumps.
-pub const PIDE_MAX_JUMPS: f64 = 50.0;
-/// Largest `|ln(S/K)|` in standard deviations of `ln S_T` (with a floor of
-/// one unit) the cross-check's PIDE attempts: further out the option is
-/// its asymptote to many digits and the grid (centred on the spot, six
-/// standard deviations wide) does not reach the strike.
-pub const PIDE_MAX_MONEYNESS_SD: f64 = 12.0;
-/// Largest standard deviation of `ln S_T` the cross-check's PIDE
-/// attempts: beyond it the grid spans more than `e^{+-30}` of the spot and
-/// its spacing cannot resolve the strike region within the work cap.
-pub const PIDE_MAX_SD: f64 = 5.0;
-/// Shortest expiry (years) the cross-check's PIDE attempts, about 30
-/// seconds: below it the one-step law is narrower than any grid worth
-/// solving.
-pub const PIDE_MIN_EXPIRY: f64 = 1e-6;
-
 /// Cross-check settings.
 #[derive(Debug, Clone)]
 pub struct CheckConfig {
@@ -115,44 +98,13 @@ pub struct PideCheck {
     pub error_estimate: f64,
 }
 
-/// Why the PIDE is not tried on `c` in a cross-check (`None`: it is).
-pub fn pide_reach(c: &Contract) -> Option<String> {
-    let lt = c.jump_intensity();
-    if lt > PIDE_MAX_JUMPS {
-        return Some(format!(
-            "pide not run: lambda T = {lt:.3e} beyond its reach ({PIDE_MAX_JUMPS})"
-        ));
-    }
-    if c.expiry > 0.0 && c.expiry < PIDE_MIN_EXPIRY {
-        return Some(format!(
-            "pide not run: expiry {:.1e} below its reach ({PIDE_MIN_EXPIRY:e} years)",
-            c.expiry
-        ));
-    }
-    let j = &c.jumps;
-    let sd = ((c.vol * c.vol + j.rate * (j.mean * j.mean + j.vol * j.vol)) * c.expiry).sqrt();
-    if sd > PIDE_MAX_SD {
-        return Some(format!(
-            "pide not run: the standard deviation of ln S_T, {sd:.3e}, is beyond its reach ({PIDE_MAX_SD})"
-        ));
-    }
-    // Each logarithm separately: S / K itself may overflow.
-    let m = c.spot.ln() - c.strike.ln();
-    if !m.is_finite() || m.abs() > PIDE_MAX_MONEYNESS_SD * sd.max(1.0) {
-        return Some(format!(
-            "pide not run: ln(S/K) = {m:.3e} beyond its reach ({PIDE_MAX_MONEYNESS_SD} sd of ln S_T)"
-        ));
-    }
-    None
-}
-
 /// The PIDE price of `c` for a cross-check, or why there is none.
 ///
 /// # Errors
 /// The reason, for an inconclusive verdict.
 pub fn pide_price(c: &Contract, exercise: Exercise, cfg: &PideConfig) -> Result<PideCheck, String> {
     if let Some(why) = pide_reach(c) {
-        return Err(why);
+        return Err(format!("pide not run: {why}"));
     }
     let r = pide::price_capped(c, exercise, cfg, PIDE_MAX_WORK)
         .map_err(|e| format!("pide engine: {e}"))?;

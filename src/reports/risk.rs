@@ -699,6 +699,9 @@ fn revalue(
 /// asked for, since only the unshocked-vol cells feed the Greeks-against-
 /// spot curve; the other Greeks are not used by the scenarios (0).
 fn revalue_american(c: &Contract, cfg: &PideConfig, vega: bool) -> Result<Greeks, String> {
+    if let Some(why) = crate::greeks::american::pide_reach(c) {
+        return Err(format!("American exercise: {why}"));
+    }
     let r = pide::price(c, Exercise::American, cfg).map_err(|e| format!("PIDE engine: {e}"))?;
     let vega = if vega {
         let engine = PideEngine {
