@@ -36,6 +36,8 @@ enum Command {
     Risk(cmd::risk::Args),
     /// Fit the Merton parameters per underlying to option quotes, with diagnostics.
     Calibrate(cmd::calibrate::Args),
+    /// Daily P&L explain between two books: Greek attribution and a revaluation waterfall.
+    Explain(cmd::explain::Args),
 }
 
 /// The largest worker count accepted: 64 x the available cores (more only
@@ -85,6 +87,7 @@ fn main() -> ExitCode {
         Command::Greeks(args) => cmd::greeks::run(args),
         Command::Risk(args) => cmd::risk::run(args),
         Command::Calibrate(args) => cmd::calibrate::run(args),
+        Command::Explain(args) => cmd::explain::run(args),
     };
     match result {
         Ok(code) => code,

@@ -9,6 +9,7 @@ mod common;
 mod crosscheck_cli;
 mod dates_cli;
 mod engine_limits_cli;
+mod explain_cli;
 mod finite_diff;
 mod fourier;
 mod fuzz_cli;

@@ -7,6 +7,7 @@
 //! which is `status`. A row that cannot be processed keeps its place, gets
 //! empty result fields and a status naming the line, column and problem.
 
+pub mod columns;
 pub mod pipeline;
 pub mod reader;
 pub mod records;

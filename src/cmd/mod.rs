@@ -10,7 +10,7 @@ macro_rules! columns_read {
     () => {
         "Columns read (by header name, any order, case-insensitive):\n  \
 required: kind, spot, strike, expiry, rate, vol, jump_rate, jump_mean, jump_vol\n  \
-optional: id, underlying, div_yield (0), quantity (1), multiplier (1, risk only),\n  \
+optional: id, underlying, div_yield (0), quantity (1), multiplier (1, risk and explain),\n  \
 valuation_date (YYYY-MM-DD; empty: --valuation-date), exercise (european, or american:\n  \
 priced by the PIDE engine to --pide-tol)\n\
 expiry is a year fraction, or a date YYYY-MM-DD when a valuation date is known (the row's\n\
@@ -32,6 +32,7 @@ written; no output file is then replaced)."
 pub mod book_inputs;
 pub mod calibrate;
 pub mod crosscheck;
+pub mod explain;
 pub mod greeks;
 pub mod output;
 pub mod pide_args;

@@ -1,0 +1,284 @@
+"""saltus from Python: Merton (1976) jump-diffusion option books priced by
+the saltus library, over columns.
+
+A book is a pandas DataFrame, a dict of arrays (numpy arrays, lists) or a
+pyarrow Table with the columns of a saltus CSV book, found by name (any
+case, surrounding spaces ignored): ``kind, spot, strike, expiry, rate, vol,
+jump_rate, jump_mean, jump_vol`` and optionally ``div_yield``, ``quantity``
+and ``multiplier``. Every number comes from the native library, on its own
+thread pool with the GIL released, so the results carry the digits of
+``saltus price`` on the same book.
+
+The row contract is the command line's: one output row per input row, in
+order; the input columns are kept and the result columns appended
+(``price, delta, gamma, vega, theta, rho, div_rho, d_jump_rate,
+d_jump_mean, d_jump_vol``, optionally ``implied_vol``, then ``terms`` and
+``status``). A row that cannot be priced keeps its place, has NaN result
+values and a status naming the row (its 0-based position) and the problem,
+e.g. ``error: row 3: vol must not be negative, got -0.2``. NaN never appears
+in a row whose status is ``ok``.
+
+Numeric columns are read as float64, NaN standing for an empty cell (as
+pandas reads one): an empty required field is an error (``vol is
+missing``), an empty optional field takes its default. Text columns (object
+or string dtype, e.g. ``pd.read_csv(..., dtype=str)``) are parsed as the
+CSV reader parses a field, with the same messages.
+
+Model prices are estimates: validate them and use them under your firm's
+model-risk policy and applicable regulation.
+"""
+
+from __future__ import annotations
+
+from typing import Any, Dict, List, Optional
+
+import numpy as np
+
+from . import _saltus
+
+__all__ = ["price", "implied_vol", "RESULT_COLUMNS", "__version__"]
+
+__version__ = _saltus.version()
+
+#: The result columns of :func:`price`, in order (``implied_vol`` is added
+#: before ``terms`` when asked for).
+RESULT_COLUMNS = [
+    "price",
+    "delta",
+    "gamma",
+    "vega",
+    "theta",
+    "rho",
+    "div_rho",
+    "d_jump_rate",
+    "d_jump_mean",
+    "d_jump_vol",
+    "terms",
+    "status",
+]
+
+_REQUIRED = [
+    "kind",
+    "spot",
+    "strike",
+    "expiry",
+    "rate",
+    "vol",
+    "jump_rate",
+    "jump_mean",
+    "jump_vol",
+]
+_OPTIONAL = ["div_yield", "quantity", "multiplier"]
+
+
+class BookError(ValueError):
+    """The book as a whole cannot be read (a missing or repeated column,
+    columns of different lengths); bad rows are not exceptions but rows
+    with a status saying why."""
+
+
+def _frame_kind(frame: Any) -> str:
+    mod = type(frame).__module__
+    if mod.startswith("pandas") and hasattr(frame, "columns"):
+        return "pandas"
+    if mod.startswith("pyarrow") and hasattr(frame, "column_names"):
+        return "arrow"
+    if isinstance(frame, dict):
+        return "dict"
+    raise TypeError(
+        "a book must be a pandas DataFrame, a dict of arrays or a pyarrow Table, "
+        f"got {type(frame).__name__}"
+    )
+
+
+def _columns(frame: Any, kind: str) -> Dict[str, Any]:
+    """Name -> column values, for every column of the book, in order."""
+    if kind == "pandas":
+        return {str(c): frame[c] for c in frame.columns}
+    if kind == "arrow":
+        return {name: frame.column(name) for name in frame.column_names}
+    return {str(k): v for k, v in frame.items()}
+
+
+def _find(names: List[str], wanted: List[str], required: bool) -> Dict[str, str]:
+    """Book column name for each wanted column (case-insensitive, trimmed)."""
+    found: Dict[str, str] = {}
+    norm = {}
+    for n in names:
+        key = n.strip().lower()
+        if key in norm and key in wanted + _REQUIRED + _OPTIONAL:
+            raise BookError(f"column '{key}' appears more than once")
+        norm[key] = n
+    missing = []
+    for w in wanted:
+        if w in norm:
+            found[w] = norm[w]
+        elif required:
+            missing.append(w)
+    if missing:
+        raise BookError("missing required columns: " + ", ".join(missing))
+    return found
+
+
+def _as_numpy(values: Any) -> np.ndarray:
+    if hasattr(values, "to_numpy") and not isinstance(values, np.ndarray):
+        try:
+            return values.to_numpy(zero_copy_only=False)  # pyarrow
+        except TypeError:
+            return values.to_numpy()  # pandas
+    return np.asarray(values)
+
+
+def _arrow_text(values: Any) -> Any:
+    """Arrow string data as (offsets int64, data uint8, null bool) arrays,
+    handed to the library without a Python object per cell; None when
+    `values` is not an Arrow string column."""
+    mod = type(values).__module__
+    if not mod.startswith("pyarrow"):
+        return None
+    import pyarrow as pa
+
+    arr = values.combine_chunks() if isinstance(values, pa.ChunkedArray) else values
+    if pa.types.is_string(arr.type) or pa.types.is_large_string(arr.type):
+        arr = arr.cast(pa.large_string())
+        _, off, data = arr.buffers()
+        n = len(arr)
+        offsets = np.frombuffer(off, dtype=np.int64)[arr.offset: arr.offset + n + 1]
+        raw = np.frombuffer(data, dtype=np.uint8) if data is not None else np.zeros(0, np.uint8)
+        null = np.ascontiguousarray(arr.is_null().to_numpy(zero_copy_only=False), dtype=bool)
+        return (np.ascontiguousarray(offsets), raw, null)
+    return None
+
+
+def _column_arg(values: Any) -> Any:
+    """A float64 contiguous array for numbers, Arrow text as buffers, else a
+    list of str | None."""
+    text = _arrow_text(values)
+    if text is not None:
+        return text
+    arr = _as_numpy(values)
+    if arr.dtype.kind in "fiub":
+        return np.ascontiguousarray(arr, dtype=np.float64)
+    out: List[Optional[str]] = []
+    for v in arr.tolist():
+        if v is None or (isinstance(v, float) and v != v):
+            out.append(None)
+        else:
+            out.append(str(v))
+    return out
+
+
+def _text_arg(values: Any) -> List[Any]:
+    """The column as a list; the native call accepts it as it is when every
+    element is a str or None (the common case, no copy in Python)."""
+    return _as_numpy(values).tolist()
+
+
+def _clean_text(values: List[Any]) -> List[Optional[str]]:
+    """str for anything that is not None or a NaN (pandas' empty cell)."""
+    return [None if (v is None or (isinstance(v, float) and v != v)) else str(v)
+            for v in values]
+
+
+def _assemble(frame: Any, kind: str, results: Dict[str, Any], order: List[str]) -> Any:
+    if kind == "pandas":
+        import pandas as pd
+
+        res = pd.DataFrame({k: results[k] for k in order}, index=frame.index)
+        clash = [c for c in order if c in frame.columns]
+        left = frame.drop(columns=clash) if clash else frame
+        return pd.concat([left, res], axis=1)
+    if kind == "arrow":
+        import pyarrow as pa
+
+        table = frame
+        for k in order:
+            if k in table.column_names:
+                table = table.drop_columns([k])
+        for k in order:
+            table = table.append_column(k, pa.array(results[k]))
+        return table
+    out = {k: v for k, v in frame.items() if k not in order}
+    out.update({k: results[k] for k in order})
+    return out
+
+
+def price(frame: Any, *, implied_vol: bool = False) -> Any:
+    """Prices every row of a book with the Merton series and all analytic
+    Greeks (raw units: vega per 1.00 of vol, theta per year).
+
+    Parameters
+    ----------
+    frame:
+        pandas DataFrame, dict of arrays or pyarrow Table with the book's
+        columns (see the module documentation).
+    implied_vol:
+        Also return ``implied_vol``, the Black-Scholes volatility of each
+        Merton price (the model smile), before ``terms``. Where it does not
+        exist in double precision it is NaN and the status reads
+        ``warning: row N: implied_vol: <reason>`` (price and Greeks kept).
+
+    Returns
+    -------
+    The same kind of object as ``frame``: its columns followed by the result
+    columns (a result column already in the input is replaced).
+
+    Raises
+    ------
+    BookError
+        A required column is missing or repeated, or columns differ in length.
+    TypeError
+        ``frame`` is not a supported type.
+    """
+    kind = _frame_kind(frame)
+    cols = _columns(frame, kind)
+    names = list(cols)
+    req = _find(names, _REQUIRED, True)
+    opt = _find(names, _OPTIONAL, False)
+    args = {w: _column_arg(cols[req[w]]) for w in _REQUIRED[1:]}
+    for w in _OPTIONAL:
+        args[w] = _column_arg(cols[opt[w]]) if w in opt else None
+    kinds = _arrow_text(cols[req["kind"]])
+    if kinds is None:
+        kinds = _text_arg(cols[req["kind"]])
+    try:
+        try:
+            res = _saltus.price_columns(kinds, implied_vol=implied_vol, **args)
+        except TypeError:
+            # Some kind is neither str nor None (a NaN, a number): convert.
+            res = _saltus.price_columns(_clean_text(kinds), implied_vol=implied_vol, **args)
+    except ValueError as e:
+        raise BookError(str(e)) from None
+    order = RESULT_COLUMNS[:10] + (["implied_vol"] if implied_vol else []) + ["terms", "status"]
+    return _assemble(frame, kind, res, order)
+
+
+def implied_vol(
+    kind: Any,
+    price: Any,
+    spot: Any,
+    strike: Any,
+    expiry: Any,
+    rate: Any,
+    div_yield: Any = 0.0,
+):
+    """Black-Scholes implied volatility of each price, to machine precision
+    (the inversion of ``saltus price --implied-vol``, docs/implied_vol.md).
+
+    Arguments are arrays of one length, or scalars broadcast to it.
+    Returns ``(vols, status)``: a float64 array and a list of ``ok`` or
+    ``error: row N: <reason>`` (the vol is NaN exactly where the status is
+    not ``ok``: a price outside its no-arbitrage bounds, a time value too
+    small for double precision to resolve, a bad input).
+    """
+    arrays = [np.atleast_1d(np.asarray(x, dtype=np.float64))
+              for x in (price, spot, strike, expiry, rate, div_yield)]
+    kinds = np.atleast_1d(np.asarray(kind, dtype=object))
+    n = max([len(kinds)] + [len(a) for a in arrays])
+    arrays = [np.ascontiguousarray(np.broadcast_to(a, (n,))) for a in arrays]
+    kinds = np.broadcast_to(kinds, (n,))
+    kind_list = _clean_text(kinds.tolist())
+    try:
+        return _saltus.implied_vol(kind_list, *arrays)
+    except ValueError as e:
+        raise BookError(str(e)) from None

@@ -1,0 +1,26 @@
+"""Type hints of the saltus package (see the module docstring of saltus/__init__.py)."""
+
+from typing import Any, List, Tuple
+
+import numpy as np
+import numpy.typing as npt
+
+__version__: str
+RESULT_COLUMNS: List[str]
+
+class BookError(ValueError): ...
+
+def price(frame: Any, *, implied_vol: bool = ...) -> Any:
+    """Prices every row of a book (pandas DataFrame, dict of arrays or pyarrow
+    Table); returns the same kind of object with the result columns appended."""
+
+def implied_vol(
+    kind: Any,
+    price: npt.ArrayLike,
+    spot: npt.ArrayLike,
+    strike: npt.ArrayLike,
+    expiry: npt.ArrayLike,
+    rate: npt.ArrayLike,
+    div_yield: npt.ArrayLike = ...,
+) -> Tuple[npt.NDArray[np.float64], List[str]]:
+    """Black-Scholes implied volatilities; NaN with a reason where there is none."""

@@ -1,0 +1,32 @@
+"""Native module of saltus (PyO3). Use the functions of the saltus package instead."""
+
+from typing import Any, Dict, List, Optional, Tuple
+
+import numpy as np
+import numpy.typing as npt
+
+def version() -> str: ...
+def price_columns(
+    kind: List[Optional[str]],
+    spot: Any,
+    strike: Any,
+    expiry: Any,
+    rate: Any,
+    vol: Any,
+    jump_rate: Any,
+    jump_mean: Any,
+    jump_vol: Any,
+    div_yield: Any = None,
+    quantity: Any = None,
+    multiplier: Any = None,
+    implied_vol: bool = False,
+) -> Dict[str, Any]: ...
+def implied_vol(
+    kind: List[Optional[str]],
+    price: npt.NDArray[np.float64],
+    spot: npt.NDArray[np.float64],
+    strike: npt.NDArray[np.float64],
+    expiry: npt.NDArray[np.float64],
+    rate: npt.NDArray[np.float64],
+    div_yield: npt.NDArray[np.float64],
+) -> Tuple[npt.NDArray[np.float64], List[str]]: ...

@@ -1,0 +1,208 @@
+//! The native module `saltus._saltus`: thin PyO3 glue between numpy arrays
+//! and the saltus library. Nothing is computed here; every number comes
+//! from the library (`saltus::book::columns`, `saltus::market::implied_vol`),
+//! so the Python package gives the digits of the command-line tool.
+//!
+//! The Python layer (`saltus/__init__.py`) finds the columns by name in a
+//! pandas DataFrame, a dict of arrays or a pyarrow Table and passes each as
+//! a contiguous float64 array or, for text, a list of `str | None`. The GIL
+//! is released while the library works on its thread pool.
+
+#![forbid(unsafe_code)]
+
+use numpy::{IntoPyArray, PyReadonlyArray1};
+use pyo3::exceptions::PyValueError;
+use pyo3::prelude::*;
+use pyo3::types::{PyDict, PyList, PyString};
+use saltus::book::columns::{price_columns, Column, ColumnBook};
+use saltus::greeks::RAW_COLUMNS;
+use saltus::model::OptionKind;
+
+/// A column as the Python layer passes it: a float64 array, Arrow-layout
+/// text as `(offsets int64, data uint8, null bool)` arrays, or a list.
+#[derive(FromPyObject)]
+enum ColArg<'py> {
+    Numbers(PyReadonlyArray1<'py, f64>),
+    Utf8(
+        PyReadonlyArray1<'py, i64>,
+        PyReadonlyArray1<'py, u8>,
+        PyReadonlyArray1<'py, bool>,
+    ),
+    Text(Vec<Option<String>>),
+}
+
+fn slice<'a, T: numpy::Element>(a: &'a PyReadonlyArray1<'_, T>) -> PyResult<&'a [T]> {
+    a.as_slice()
+        .map_err(|e| PyValueError::new_err(format!("array not contiguous: {e}")))
+}
+
+impl ColArg<'_> {
+    fn column(&self) -> PyResult<Column<'_>> {
+        Ok(match self {
+            ColArg::Numbers(a) => Column::Numbers(slice(a)?),
+            ColArg::Utf8(offsets, data, null) => Column::Utf8 {
+                offsets: slice(offsets)?,
+                data: slice(data)?,
+                null: slice(null)?,
+            },
+            ColArg::Text(v) => Column::Text(v),
+        })
+    }
+}
+
+fn opt_column<'a>(c: &'a Option<ColArg<'_>>) -> PyResult<Option<Column<'a>>> {
+    c.as_ref().map(ColArg::column).transpose()
+}
+
+/// Prices a book given as columns; returns a dict of result columns
+/// (`price` ... `d_jump_vol`, optionally `implied_vol`, `terms` as float64
+/// arrays, `status` as a list of str).
+#[pyfunction(name = "price_columns")]
+#[pyo3(signature = (kind, spot, strike, expiry, rate, vol, jump_rate, jump_mean, jump_vol,
+    div_yield=None, quantity=None, multiplier=None, implied_vol=false))]
+#[allow(clippy::too_many_arguments)]
+fn price_columns_py<'py>(
+    py: Python<'py>,
+    kind: ColArg<'py>,
+    spot: ColArg<'py>,
+    strike: ColArg<'py>,
+    expiry: ColArg<'py>,
+    rate: ColArg<'py>,
+    vol: ColArg<'py>,
+    jump_rate: ColArg<'py>,
+    jump_mean: ColArg<'py>,
+    jump_vol: ColArg<'py>,
+    div_yield: Option<ColArg<'py>>,
+    quantity: Option<ColArg<'py>>,
+    multiplier: Option<ColArg<'py>>,
+    implied_vol: bool,
+) -> PyResult<Bound<'py, PyDict>> {
+    let book = ColumnBook {
+        kind: kind.column()?,
+        spot: spot.column()?,
+        strike: strike.column()?,
+        expiry: expiry.column()?,
+        rate: rate.column()?,
+        vol: vol.column()?,
+        jump_rate: jump_rate.column()?,
+        jump_mean: jump_mean.column()?,
+        jump_vol: jump_vol.column()?,
+        div_yield: opt_column(&div_yield)?,
+        quantity: opt_column(&quantity)?,
+        multiplier: opt_column(&multiplier)?,
+    };
+    let out = py
+        .detach(|| price_columns(&book, implied_vol))
+        .map_err(|e| PyValueError::new_err(e.to_string()))?;
+    let d = PyDict::new(py);
+    for (name, v) in RAW_COLUMNS.iter().zip(out.values) {
+        d.set_item(*name, v.into_pyarray(py))?;
+    }
+    if let Some(iv) = out.implied_vol {
+        d.set_item("implied_vol", iv.into_pyarray(py))?;
+    }
+    d.set_item("terms", out.terms.into_pyarray(py))?;
+    d.set_item("status", status_list(py, out.status)?)?;
+    Ok(d)
+}
+
+/// The statuses as a Python list, every `ok` the same interned string
+/// (a million rows then make a handful of string objects, not a million).
+fn status_list(py: Python<'_>, status: Vec<String>) -> PyResult<Bound<'_, PyList>> {
+    let ok = pyo3::intern!(py, "ok");
+    let items: Vec<Bound<'_, PyAny>> = status
+        .into_iter()
+        .map(|s| {
+            if s == "ok" {
+                ok.clone().into_any()
+            } else {
+                PyString::new(py, &s).into_any()
+            }
+        })
+        .collect();
+    PyList::new(py, items)
+}
+
+/// Black-Scholes implied volatilities of prices, element by element;
+/// returns `(vols, status)` with NaN and a reason where there is none.
+#[pyfunction(name = "implied_vol")]
+#[pyo3(signature = (kind, price, spot, strike, expiry, rate, div_yield))]
+#[allow(clippy::too_many_arguments)]
+fn implied_vol_py<'py>(
+    py: Python<'py>,
+    kind: Vec<Option<String>>,
+    price: PyReadonlyArray1<'py, f64>,
+    spot: PyReadonlyArray1<'py, f64>,
+    strike: PyReadonlyArray1<'py, f64>,
+    expiry: PyReadonlyArray1<'py, f64>,
+    rate: PyReadonlyArray1<'py, f64>,
+    div_yield: PyReadonlyArray1<'py, f64>,
+) -> PyResult<(Bound<'py, numpy::PyArray1<f64>>, Bound<'py, PyList>)> {
+    let cols = [&price, &spot, &strike, &expiry, &rate, &div_yield];
+    let n = kind.len();
+    let mut slices = Vec::with_capacity(cols.len());
+    for (name, c) in ["price", "spot", "strike", "expiry", "rate", "div_yield"]
+        .iter()
+        .zip(cols)
+    {
+        let s = c
+            .as_slice()
+            .map_err(|e| PyValueError::new_err(format!("array not contiguous: {e}")))?;
+        if s.len() != n {
+            return Err(PyValueError::new_err(format!(
+                "column {name} has {} rows where kind has {n}",
+                s.len()
+            )));
+        }
+        slices.push(s);
+    }
+    let (vols, status) = py.detach(|| {
+        use rayon::prelude::*;
+        (0..n)
+            .into_par_iter()
+            .with_min_len(1024)
+            .map(|i| {
+                let k = match kind[i].as_deref().map(str::trim) {
+                    None | Some("") => {
+                        return (f64::NAN, format!("error: row {i}: kind is missing"))
+                    }
+                    Some(t) => match t.parse::<OptionKind>() {
+                        Ok(k) => k,
+                        Err(()) => {
+                            return (
+                                f64::NAN,
+                                format!(
+                                    "error: row {i}: kind '{}' is not call or put",
+                                    t.escape_debug()
+                                ),
+                            )
+                        }
+                    },
+                };
+                let s = &slices;
+                match saltus::market::implied_vol::implied_vol(
+                    k, s[0][i], s[1][i], s[2][i], s[3][i], s[4][i], s[5][i],
+                ) {
+                    Ok(v) => (v, "ok".to_string()),
+                    Err(e) => (f64::NAN, format!("error: row {i}: {e}")),
+                }
+            })
+            .unzip::<_, _, Vec<f64>, Vec<String>>()
+    });
+    Ok((vols.into_pyarray(py), status_list(py, status)?))
+}
+
+/// The saltus version this module was built from.
+#[pyfunction]
+fn version() -> &'static str {
+    env!("CARGO_PKG_VERSION")
+}
+
+/// The native part of the saltus package.
+#[pymodule]
+fn _saltus(m: &Bound<'_, PyModule>) -> PyResult<()> {
+    m.add_function(wrap_pyfunction!(price_columns_py, m)?)?;
+    m.add_function(wrap_pyfunction!(implied_vol_py, m)?)?;
+    m.add_function(wrap_pyfunction!(version, m)?)?;
+    Ok(())
+}

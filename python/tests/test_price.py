@@ -1,0 +1,191 @@
+"""saltus.price against the command line (same digits), the 40-digit mpmath
+fixture (accuracy) and the row contract (bad rows)."""
+
+from __future__ import annotations
+
+import csv
+import math
+import random
+import threading
+
+import numpy as np
+import pandas as pd
+import pytest
+
+import saltus
+from conftest import ROOT, run_cli, write_csv
+
+GREEKS = saltus.RESULT_COLUMNS[:10]
+
+
+def invented_book(n: int, seed: int):
+    """An invented book spanning short to long expiries, wings and jump
+    regimes, with a few bad rows (made-up numbers, no market data)."""
+    rng = random.Random(seed)
+    header = ["id", "kind", "spot", "strike", "expiry", "rate", "div_yield",
+              "vol", "jump_rate", "jump_mean", "jump_vol", "quantity"]
+    rows = []
+    for i in range(n):
+        s = rng.choice([20.0, 100.0, 2500.0])
+        rows.append([
+            f"Q{i}", rng.choice(["call", "put", "Call", " PUT "]), repr(s),
+            repr(round(s * rng.uniform(0.4, 2.2), 4)),
+            repr(rng.choice([0.0, 1 / 365, 0.1, 0.5, 2.0, 10.0])),
+            repr(round(rng.uniform(-0.01, 0.08), 5)), repr(round(rng.uniform(0, 0.04), 5)),
+            repr(rng.choice([0.0, 0.05, 0.2, 0.6])), repr(rng.choice([0.0, 0.1, 1.0, 8.0])),
+            repr(round(rng.uniform(-0.5, 0.2), 4)), repr(rng.choice([0.0, 0.05, 0.3])),
+            repr(rng.choice([1, -3, 10])),
+        ])
+    rows[3][7] = "-0.2"        # negative vol
+    rows[5][3] = "abc"         # strike not a number
+    rows[7][1] = "straddle"    # bad kind
+    rows[9][8] = ""            # missing jump_rate
+    rows[11][2] = "32%"        # nearly a number
+    return header, rows
+
+
+def same_float(a: str, b: float) -> bool:
+    if a == "":
+        return math.isnan(b)
+    return float(a) == b and not math.isnan(b)
+
+
+@pytest.mark.parametrize("implied", [False, True])
+def test_same_digits_as_the_cli(cli, tmp_path, implied):
+    """Every value and status equals `saltus price` on the same CSV (source:
+    the command-line tool; the CLI writes shortest round-trip decimals, so
+    reading them back gives the same doubles)."""
+    header, rows = invented_book(400, 7)
+    book = write_csv(tmp_path / "book.csv", header, rows)
+    args = ["price", str(book)] + (["--implied-vol"] if implied else [])
+    h, got = run_cli(cli, args, tmp_path)
+    frame = pd.read_csv(book, dtype=str, keep_default_na=False)
+    out = saltus.price(frame, implied_vol=implied)
+    cols = GREEKS + (["implied_vol"] if implied else []) + ["terms"]
+    assert h[len(header):] == cols + ["status"]
+    assert list(out.columns) == header + cols + ["status"]
+    for i, r in enumerate(got):
+        rec = dict(zip(h, r))
+        # The CLI counts input lines (header = line 1); Python counts rows from 0.
+        assert out["status"][i] == rec["status"].replace(f"line {i + 2}:", f"row {i}:"), i
+        for c in cols:
+            assert same_float(rec[c], out[c][i]), (i, c, rec[c], out[c][i])
+
+
+def test_numeric_frame_equals_text_frame(tmp_path):
+    """pd.read_csv with numeric dtypes gives the same digits as text columns
+    (both parsers are correctly rounded)."""
+    header, rows = invented_book(200, 11)
+    good = [r for i, r in enumerate(rows) if i not in (3, 5, 7, 9, 11)]
+    book = write_csv(tmp_path / "good.csv", header, good)
+    a = saltus.price(pd.read_csv(book))
+    b = saltus.price(pd.read_csv(book, dtype=str))
+    for c in GREEKS + ["terms"]:
+        np.testing.assert_array_equal(a[c].to_numpy(), b[c].to_numpy())
+    assert (a["status"] == "ok").all()
+
+
+def test_against_the_mpmath_fixture():
+    """Prices within 1e-13 x spot and Greeks within 1e-9 relative of the
+    40-digit mpmath values (tests/data/merton_reference.csv, made by
+    scripts/make_reference.py) - the bounds the Rust reference test asserts."""
+    ref = pd.read_csv(ROOT / "tests" / "data" / "merton_reference.csv", dtype={"case": str})
+    out = saltus.price(ref.drop(columns=GREEKS + ["vanna", "volga"]))
+    assert (out["status"] == "ok").all(), out["status"].tolist()
+    for c in GREEKS:
+        want = ref[c].to_numpy()
+        got = out[c].to_numpy()
+        tol = (1e-13 if c == "price" else 1e-9) * np.maximum(np.abs(want), 1e-4 * ref["spot"])
+        if c == "price":
+            tol = 1e-13 * ref["spot"].to_numpy()
+        bad = np.abs(got - want) > tol
+        assert not bad.any(), (c, ref["case"][bad].tolist())
+
+
+def test_bad_rows_keep_their_place_and_say_why():
+    """The row contract of README 'Bad input', with 0-based row positions."""
+    frame = {
+        "kind": np.array(["call", "put", "call", "put"], dtype=object),
+        "spot": np.array([100.0, 100.0, np.nan, 100.0]),
+        "strike": np.array([100.0, 90.0, 100.0, 100.0]),
+        "expiry": np.array([0.5, 0.5, 0.5, 0.5]),
+        "rate": np.array([0.02, 0.02, 0.02, 0.02]),
+        "vol": np.array([0.2, -0.2, 0.2, np.inf]),
+        "jump_rate": np.array([0.3, 0.3, 0.3, 0.3]),
+        "jump_mean": np.array([-0.1, -0.1, -0.1, -0.1]),
+        "jump_vol": np.array([0.15, 0.15, 0.15, 0.15]),
+        "div_yield": np.array([np.nan, 0.01, 0.0, 0.0]),
+    }
+    out = saltus.price(frame)
+    assert out["status"] == [
+        "ok",
+        "error: row 1: vol must not be negative, got -0.2",
+        "error: row 2: spot is missing",
+        "error: row 3: vol is not a finite number (inf)",
+    ]
+    assert np.isfinite(out["price"][0]) and np.isnan(out["price"][1:]).all()
+    # An empty (NaN) optional cell takes its default: div_yield 0.
+    again = saltus.price({**frame, "div_yield": np.zeros(4)})
+    assert again["price"][0] == out["price"][0]
+
+
+def test_book_errors_are_exceptions():
+    base = {"kind": ["call"], "spot": [100.0], "strike": [100.0], "expiry": [1.0],
+            "rate": [0.0], "vol": [0.2], "jump_rate": [0.1], "jump_mean": [0.0]}
+    with pytest.raises(saltus.BookError, match="missing required columns: jump_vol"):
+        saltus.price(base)
+    with pytest.raises(saltus.BookError, match="column jump_vol has 2 rows where kind has 1"):
+        saltus.price({**base, "jump_vol": [0.1, 0.2]})
+    with pytest.raises(saltus.BookError, match="more than once"):
+        saltus.price({**base, "jump_vol": [0.1], " Jump_Vol": [0.1]})
+    with pytest.raises(TypeError):
+        saltus.price([1, 2, 3])
+
+
+def test_columns_found_by_name_in_any_case_and_order():
+    f = pd.DataFrame({" JUMP_VOL": [0.1], "Kind": ["put"], "spot": [100], "strike": [95],
+                      "expiry": [1], "rate": [0.01], "vol": [0.2], "jump_rate": [0.5],
+                      "jump_mean": [-0.2], "note": ["kept"]})
+    out = saltus.price(f)
+    assert out["status"][0] == "ok" and out["note"][0] == "kept"
+    assert list(out.columns)[:10] == list(f.columns)
+
+
+def test_pyarrow_table():
+    pa = pytest.importorskip("pyarrow")
+    header, rows = invented_book(50, 3)
+    f = pd.DataFrame(rows, columns=header)
+    a = saltus.price(f)
+    t = saltus.price(pa.Table.from_pandas(f, preserve_index=False))
+    assert t.column_names == list(a.columns)
+    np.testing.assert_array_equal(t.column("price").to_numpy(zero_copy_only=False),
+                                  a["price"].to_numpy())
+    assert t.column("status").to_pylist() == a["status"].tolist()
+
+
+def test_gil_is_released_while_pricing():
+    """Another Python thread runs while the native library prices (the GIL
+    is released around the computation)."""
+    n = 300_000
+    rng = np.random.default_rng(1)
+    args = dict(
+        kind=["call"] * n, spot=np.full(n, 100.0), strike=rng.uniform(50, 150, n),
+        expiry=rng.uniform(0.1, 3, n), rate=np.full(n, 0.02), vol=np.full(n, 0.2),
+        jump_rate=np.full(n, 2.0), jump_mean=np.full(n, -0.1), jump_vol=np.full(n, 0.2),
+    )
+    started = threading.Event()
+    done = threading.Event()
+
+    def work():
+        started.set()
+        saltus._saltus.price_columns(**args)
+        done.set()
+
+    t = threading.Thread(target=work)
+    t.start()
+    started.wait()
+    count = 0
+    while not done.is_set():
+        count += 1
+    t.join()
+    assert count > 1000, count
