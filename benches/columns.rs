@@ -42,6 +42,8 @@ fn bench(c: &mut Criterion) {
         div_yield: Some(Column::Numbers(&div)),
         quantity: None,
         multiplier: None,
+        valuation_date: None,
+        default_valuation: None,
     };
     let mut g = c.benchmark_group("columns");
     g.sample_size(10);

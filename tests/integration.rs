@@ -26,4 +26,6 @@ mod price_cli;
 mod properties;
 mod reference;
 mod risk_cli;
+mod risk_page_browser;
+mod risk_scenarios_cli;
 mod series_domain;

@@ -169,14 +169,11 @@ fn small_shocks_match_delta_gamma_to_second_order() {
         ),
     ];
     let remainder = |eps: f64| {
-        let spec = ScenarioSpec {
-            spot_shocks: vec![eps],
-            vol_shocks: vec![0.0],
-            jump_shocks: vec![],
-        };
+        let spec = ScenarioSpec::new(vec![100.0 * eps], vec![0.0], vec![]).unwrap();
+        let shock = spec.spot_shocks[0];
         let r = risk::build(positions.clone(), spec).unwrap();
         let (e, s) = &r.by_underlying["X"];
-        let ds = 100.0 * eps;
+        let ds = 100.0 * shock;
         (s.grid[0][0].pnl - (e.delta * ds + 0.5 * e.gamma * ds * ds)).abs()
     };
     let (r1, r2) = (remainder(0.002), remainder(0.001));
@@ -205,8 +202,20 @@ fn html_report_is_self_contained_with_valid_svg_charts() {
         svgs.push(&rest[i..j]);
         rest = &rest[j..];
     }
-    // P&L vs spot, 4 heat maps (3 underlyings + book), 3 Greeks-vs-spot charts.
-    assert_eq!(svgs.len(), 8);
+    // P&L vs spot, 4 heat maps (3 underlyings + book) each with its colour
+    // key, 3 Greeks-vs-spot charts.
+    let (keys, charts): (Vec<&str>, Vec<&str>) = svgs
+        .iter()
+        .partition(|s| s.starts_with("<svg class=\"colour-key\""));
+    assert_eq!(charts.len(), 8);
+    assert_eq!(keys.len(), 4);
+    for k in &keys {
+        let doc = roxmltree::Document::parse(k).expect("well-formed SVG");
+        let labels: Vec<&str> = doc.descendants().filter_map(|n| n.text()).collect();
+        assert!(labels.iter().any(|t| t.ends_with(" gain")), "{labels:?}");
+        assert!(labels.iter().any(|t| t.ends_with(" loss")), "{labels:?}");
+    }
+    let svgs = charts;
     for svg in &svgs {
         let doc = roxmltree::Document::parse(svg).expect("well-formed SVG");
         assert_eq!(doc.root_element().tag_name().name(), "svg");
@@ -465,9 +474,12 @@ fn issue8_risk_streams_with_the_same_digits_on_any_thread_count() {
         assert_eq!(&c[col(&sh, "status")], "ok");
         assert_eq!(&c[col(&sh, "rows_failed")], "0");
         let pnl: f64 = c[col(&sh, "pnl")].parse().unwrap();
-        match (&c[col(&sh, "spot_shock")], &c[col(&sh, "vol_shock")]) {
+        match (
+            &c[col(&sh, "spot_shock_pct")],
+            &c[col(&sh, "vol_shock_pts")],
+        ) {
             ("0.0", "0.0") => assert_eq!(pnl, 0.0, "zero shock, zero P&L exactly"),
-            ("0.05", "0.0") => {
+            ("5.0", "0.0") => {
                 let (w, scale) = &want[&c[0]];
                 close(pnl, w[4], scale[4], "pnl +5%");
             }
@@ -529,7 +541,7 @@ fn issue8_risk_row_whose_shocked_vol_leaves_the_domain_completes() {
         assert_eq!(&f[col(&fh, "id")], "B");
         assert_eq!(&f[col(&fh, "underlying")], "ORVAL-SYN");
         assert_eq!(&f[col(&fh, "scenario")], "grid");
-        assert!(["0.075", "0.1"].contains(&&f[col(&fh, "vol_shock")]));
+        assert!(["7.5", "10.0"].contains(&&f[col(&fh, "vol_shock_pts")]));
         assert!(f[col(&fh, "reason")].contains("vol"), "{:?}", f);
     }
 
@@ -540,8 +552,8 @@ fn issue8_risk_row_whose_shocked_vol_leaves_the_domain_completes() {
     let mut checked = 0;
     for c in &cells {
         let (spot, vol): (f64, f64) = (
-            c[col(&sh, "spot_shock")].parse().unwrap(),
-            c[col(&sh, "vol_shock")].parse().unwrap(),
+            c[col(&sh, "spot_shock_pct")].parse::<f64>().unwrap() / 100.0,
+            c[col(&sh, "vol_shock_pts")].parse::<f64>().unwrap() / 100.0,
         );
         let failed: u64 = c[col(&sh, "rows_failed")].parse().unwrap();
         let status = &c[col(&sh, "status")];
@@ -585,11 +597,11 @@ fn issue8_risk_row_whose_shocked_vol_leaves_the_domain_completes() {
         "the report says so"
     );
     assert_eq!(
-        html.matches("<td>grid: spot ").count(),
+        html.matches("<td class=\"text\">grid: spot ").count(),
         26,
         "and lists them"
     );
-    assert!(html.contains("<td>grid: spot +30%, vol 10 points</td>"));
+    assert!(html.contains("<td class=\"text\">grid: spot +30%, vol 10 points</td>"));
 }
 
 #[test]
@@ -714,7 +726,7 @@ fn issue8_risk_aggregate_that_overflows_is_an_error_not_inf() {
     let (sh, cells) = records(&out.join("scenarios.csv"));
     for c in &cells {
         let st = &c[col(&sh, "status")];
-        if &c[col(&sh, "spot_shock")] == "1.0" {
+        if &c[col(&sh, "spot_shock_pct")] == "100.0" {
             assert!(st.starts_with("error: pnl not finite"), "{st}");
             assert!(c[col(&sh, "pnl")].is_empty());
         } else {
@@ -774,7 +786,7 @@ fn risk_report_lists_at_most_1000_failed_rows_and_counts_the_rest() {
     let (_tmp, out, code, err) = risk_run(book.as_bytes(), &SMALL_GRID);
     assert_eq!(code, 1, "{err}");
     let html = fs::read_to_string(out.join("report.html")).unwrap();
-    assert!(html.contains("1005 rows could not be priced"));
+    assert!(html.contains("1,005 rows could not be priced"));
     assert!(html.contains("and 5 more failed rows"), "bounded list");
     assert!(html.contains(">X999<") && !html.contains(">X1000<"));
 }
@@ -844,8 +856,8 @@ fn pipeline_state_is_per_chunk_and_merged_in_chunk_order() {
 #[test]
 fn risk_report_page_stays_bounded_with_many_underlyings() {
     // 25 underlyings: every one in the tables, heat maps for the 20 with the
-    // largest grid P&L (row U24 has the largest quantity) and the book, line
-    // charts with 8 underlyings.
+    // largest grid P&L (row U24 has the largest quantity) and the book, each
+    // with its colour key, line charts with 6 underlyings.
     let mut book = format!("{HEADER}\n");
     for i in 0..25 {
         book.push_str(&format!(
@@ -858,8 +870,8 @@ fn risk_report_page_stays_bounded_with_many_underlyings() {
     let html = fs::read_to_string(out.join("report.html")).unwrap();
     assert_eq!(
         html.matches("<svg").count(),
-        4 + 21,
-        "4 line charts, 21 heat maps"
+        4 + 2 * 21,
+        "4 line charts, 21 heat maps and their colour keys"
     );
     assert!(
         html.contains("P&amp;L by full revaluation: U24")

@@ -68,7 +68,7 @@ _REQUIRED = [
     "jump_mean",
     "jump_vol",
 ]
-_OPTIONAL = ["div_yield", "quantity", "multiplier"]
+_OPTIONAL = ["div_yield", "quantity", "multiplier", "valuation_date"]
 
 
 class BookError(ValueError):
@@ -150,22 +150,51 @@ def _arrow_text(values: Any) -> Any:
     return None
 
 
-def _column_arg(values: Any) -> Any:
-    """A float64 contiguous array for numbers, Arrow text as buffers, else a
-    list of str | None."""
+def _dates_as_text(arr: np.ndarray, name: str) -> List[Optional[str]]:
+    """Calendar dates (datetime64) as `YYYY-MM-DD` text; NaT is an empty
+    cell. A time of day other than midnight is refused: saltus counts days."""
+    days = arr.astype("datetime64[D]")
+    has_time = (arr != days) & ~np.isnat(arr)
+    if has_time.any():
+        i = int(np.flatnonzero(has_time)[0])
+        raise BookError(f"column {name} holds a time of day at row {i} ({arr[i]}); "
+                        "give calendar dates")
+    text = np.datetime_as_string(days, unit="D")
+    return [None if t == "NaT" else str(t) for t in text.tolist()]
+
+
+def _column_arg(values: Any, name: str = "") -> Any:
+    """A float64 contiguous array for numbers, Arrow text as buffers, dates
+    as ISO text, else a list of str | None."""
     text = _arrow_text(values)
     if text is not None:
         return text
     arr = _as_numpy(values)
+    if arr.dtype.kind == "M":
+        return _dates_as_text(arr, name)
     if arr.dtype.kind in "fiub":
         return np.ascontiguousarray(arr, dtype=np.float64)
     out: List[Optional[str]] = []
     for v in arr.tolist():
         if v is None or (isinstance(v, float) and v != v):
             out.append(None)
+        elif hasattr(v, "isoformat") and not isinstance(v, str):
+            out.append(_date_text(v, name))
         else:
             out.append(str(v))
     return out
+
+
+def _date_text(v: Any, name: str) -> str:
+    """A date or timestamp object as `YYYY-MM-DD` (midnight only)."""
+    import datetime as dt
+
+    if isinstance(v, dt.datetime) or hasattr(v, "to_pydatetime"):
+        t = v.to_pydatetime() if hasattr(v, "to_pydatetime") else v
+        if (t.hour, t.minute, t.second, t.microsecond) != (0, 0, 0, 0):
+            raise BookError(f"column {name} holds a time of day ({v}); give calendar dates")
+        return t.date().isoformat()
+    return v.isoformat()
 
 
 def _text_arg(values: Any) -> List[Any]:
@@ -203,7 +232,7 @@ def _assemble(frame: Any, kind: str, results: Dict[str, Any], order: List[str]) 
     return out
 
 
-def price(frame: Any, *, implied_vol: bool = False) -> Any:
+def price(frame: Any, *, implied_vol: bool = False, valuation_date: Any = None) -> Any:
     """Prices every row of a book with the Merton series and all analytic
     Greeks (raw units: vega per 1.00 of vol, theta per year).
 
@@ -217,6 +246,15 @@ def price(frame: Any, *, implied_vol: bool = False) -> Any:
         Merton price (the model smile), before ``terms``. Where it does not
         exist in double precision it is NaN and the status reads
         ``warning: row N: implied_vol: <reason>`` (price and Greeks kept).
+    valuation_date:
+        The valuation date (``"YYYY-MM-DD"``, a ``datetime.date`` or a
+        pandas Timestamp at midnight) of rows whose ``expiry`` is a date and
+        that have no ``valuation_date`` of their own. Expiries may then be
+        dates (text ``YYYY-MM-DD``, ``datetime64`` or date objects); the year
+        fraction is ACT/365 fixed, as on the command line, and is returned in
+        an ``expiry_years`` column placed before the results whenever a
+        valuation date can apply (this argument or a ``valuation_date``
+        column), exactly as ``saltus price --valuation-date`` writes it.
 
     Returns
     -------
@@ -235,9 +273,12 @@ def price(frame: Any, *, implied_vol: bool = False) -> Any:
     names = list(cols)
     req = _find(names, _REQUIRED, True)
     opt = _find(names, _OPTIONAL, False)
-    args = {w: _column_arg(cols[req[w]]) for w in _REQUIRED[1:]}
+    args = {w: _column_arg(cols[req[w]], w) for w in _REQUIRED[1:]}
     for w in _OPTIONAL:
-        args[w] = _column_arg(cols[opt[w]]) if w in opt else None
+        args[w] = _column_arg(cols[opt[w]], w) if w in opt else None
+    if valuation_date is not None:
+        args["default_valuation"] = (valuation_date if isinstance(valuation_date, str)
+                                     else _date_text(valuation_date, "valuation_date"))
     kinds = _arrow_text(cols[req["kind"]])
     if kinds is None:
         kinds = _text_arg(cols[req["kind"]])
@@ -249,7 +290,8 @@ def price(frame: Any, *, implied_vol: bool = False) -> Any:
             res = _saltus.price_columns(_clean_text(kinds), implied_vol=implied_vol, **args)
     except ValueError as e:
         raise BookError(str(e)) from None
-    order = RESULT_COLUMNS[:10] + (["implied_vol"] if implied_vol else []) + ["terms", "status"]
+    order = (["expiry_years"] if "expiry_years" in res else []) + RESULT_COLUMNS[:10] \
+        + (["implied_vol"] if implied_vol else []) + ["terms", "status"]
     return _assemble(frame, kind, res, order)
 
 

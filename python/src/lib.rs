@@ -59,7 +59,8 @@ fn opt_column<'a>(c: &'a Option<ColArg<'_>>) -> PyResult<Option<Column<'a>>> {
 /// arrays, `status` as a list of str).
 #[pyfunction(name = "price_columns")]
 #[pyo3(signature = (kind, spot, strike, expiry, rate, vol, jump_rate, jump_mean, jump_vol,
-    div_yield=None, quantity=None, multiplier=None, implied_vol=false))]
+    div_yield=None, quantity=None, multiplier=None, valuation_date=None,
+    default_valuation=None, implied_vol=false))]
 #[allow(clippy::too_many_arguments)]
 fn price_columns_py<'py>(
     py: Python<'py>,
@@ -75,8 +76,17 @@ fn price_columns_py<'py>(
     div_yield: Option<ColArg<'py>>,
     quantity: Option<ColArg<'py>>,
     multiplier: Option<ColArg<'py>>,
+    valuation_date: Option<ColArg<'py>>,
+    default_valuation: Option<String>,
     implied_vol: bool,
 ) -> PyResult<Bound<'py, PyDict>> {
+    let default_valuation = match default_valuation {
+        None => None,
+        Some(t) => Some(
+            saltus::market::dates::parse_date(&t)
+                .map_err(|e| PyValueError::new_err(format!("valuation_date '{t}' {e}")))?,
+        ),
+    };
     let book = ColumnBook {
         kind: kind.column()?,
         spot: spot.column()?,
@@ -90,11 +100,16 @@ fn price_columns_py<'py>(
         div_yield: opt_column(&div_yield)?,
         quantity: opt_column(&quantity)?,
         multiplier: opt_column(&multiplier)?,
+        valuation_date: opt_column(&valuation_date)?,
+        default_valuation,
     };
     let out = py
         .detach(|| price_columns(&book, implied_vol))
         .map_err(|e| PyValueError::new_err(e.to_string()))?;
     let d = PyDict::new(py);
+    if let Some(y) = out.expiry_years {
+        d.set_item("expiry_years", y.into_pyarray(py))?;
+    }
     for (name, v) in RAW_COLUMNS.iter().zip(out.values) {
         d.set_item(*name, v.into_pyarray(py))?;
     }

@@ -189,3 +189,39 @@ def test_gil_is_released_while_pricing():
         count += 1
     t.join()
     assert count > 1000, count
+
+
+def test_dated_expiries_match_the_cli(cli, tmp_path):
+    """Dates as expiries: ACT/365 fixed from the valuation date, the same
+    expiry_years and prices as `saltus price --valuation-date` (source: the
+    command line), with datetime64 columns and per-row valuation dates."""
+    header = ["id", "kind", "spot", "strike", "expiry", "valuation_date", "rate", "vol",
+              "jump_rate", "jump_mean", "jump_vol"]
+    rows = [
+        ["D1", "call", "100", "95", "2027-03-19", "", "0.03", "0.2", "0.5", "-0.1", "0.2"],
+        ["D2", "put", "100", "105", "2028-02-29", "2027-01-04", "0.03", "0.2", "0.5", "-0.1", "0.2"],
+        ["D3", "put", "100", "105", "0.75", "", "0.03", "0.2", "0.5", "-0.1", "0.2"],
+        ["D4", "call", "100", "95", "2026-11-30", "", "0.03", "0.2", "0.5", "-0.1", "0.2"],
+        ["D5", "call", "100", "95", "2027-02-30", "", "0.03", "0.2", "0.5", "-0.1", "0.2"],
+    ]
+    book = write_csv(tmp_path / "dated.csv", header, rows)
+    h, got = run_cli(cli, ["price", str(book), "--valuation-date", "2026-12-02"], tmp_path)
+    text = saltus.price(pd.read_csv(book, dtype=str, keep_default_na=False),
+                        valuation_date="2026-12-02")
+    assert list(text.columns) == h
+    for i, r in enumerate(got):
+        rec = dict(zip(h, r))
+        assert text["status"][i] == rec["status"].replace(f"line {i + 2}:", f"row {i}:")
+        for c in ["expiry_years"] + GREEKS:
+            assert same_float(rec[c], text[c][i]), (i, c)
+    # 2026-12-02 to 2027-03-19 is 107 days (counted by hand: 29 + 31 + 28 + 19).
+    assert text["expiry_years"][0] == 107 / 365
+    # The same book with datetime64 columns and a date object.
+    import datetime as dt
+    typed = pd.read_csv(book, dtype=str, keep_default_na=False).iloc[[0, 1]].copy()
+    typed["expiry"] = pd.to_datetime(typed["expiry"])
+    typed["valuation_date"] = pd.to_datetime(typed["valuation_date"].replace("", None))
+    out = saltus.price(typed, valuation_date=dt.date(2026, 12, 2))
+    np.testing.assert_array_equal(out["price"].to_numpy(), text["price"][:2].to_numpy())
+    with pytest.raises(saltus.BookError, match="time of day"):
+        saltus.price(typed.assign(expiry=pd.to_datetime(["2027-03-19 10:00", "2028-02-29 00:00"])))

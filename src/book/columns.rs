@@ -22,6 +22,7 @@ use super::reader::{general_number, plain_decimal};
 use super::writer::non_finite_message;
 use crate::engines::series;
 use crate::greeks::RAW_COLUMNS;
+use crate::market::dates::{self, Date};
 use crate::market::implied_vol::implied_vol;
 use crate::model::{Contract, JumpParams, OptionKind, Short};
 use rayon::prelude::*;
@@ -97,10 +98,17 @@ impl<'a> Column<'a> {
     }
 }
 
+/// An optional number: the default for an empty cell; like the CSV
+/// reader, a value that is not finite (`inf`, `nan` written out) is refused.
 fn optional(col: &Option<Column<'_>>, i: usize, name: &str, default: f64) -> Result<f64, String> {
-    match col {
-        Some(c) => Ok(c.get(i, name)?.unwrap_or(default)),
-        None => Ok(default),
+    let v = match col {
+        Some(c) => c.get(i, name)?.unwrap_or(default),
+        None => default,
+    };
+    if v.is_finite() {
+        Ok(v)
+    } else {
+        Err(format!("{name} is not a finite number ({})", Short(v)))
     }
 }
 
@@ -131,6 +139,11 @@ pub struct ColumnBook<'a> {
     pub quantity: Option<Column<'a>>,
     /// Contract multiplier (checked, default 1; not used by pricing).
     pub multiplier: Option<Column<'a>>,
+    /// Per-row valuation dates `YYYY-MM-DD` (text; an empty cell takes
+    /// `default_valuation`), for expiries written as dates.
+    pub valuation_date: Option<Column<'a>>,
+    /// The valuation date of rows without their own.
+    pub default_valuation: Option<Date>,
 }
 
 /// Why a column book cannot be priced at all.
@@ -182,6 +195,7 @@ impl<'a> ColumnBook<'a> {
             ("div_yield", &self.div_yield),
             ("quantity", &self.quantity),
             ("multiplier", &self.multiplier),
+            ("valuation_date", &self.valuation_date),
         ] {
             if let Some(c) = c {
                 v.push((name, *c));
@@ -213,6 +227,32 @@ impl<'a> ColumnBook<'a> {
         Ok(())
     }
 
+    /// True when an expiry may be a date (a default valuation date is
+    /// given or the book has a `valuation_date` column): the results then
+    /// carry `expiry_years`, as the CSV commands write it.
+    pub fn dated(&self) -> bool {
+        self.default_valuation.is_some() || self.valuation_date.is_some()
+    }
+
+    /// The `expiry` of row `i` in years: a number, or an ISO date turned
+    /// into an ACT/365 fixed year fraction from the row's valuation date
+    /// (the CSV reader's rule and messages).
+    fn expiry_years(&self, i: usize) -> Result<f64, String> {
+        let as_number = self.expiry.get(i, "expiry");
+        let field = match (&as_number, self.expiry.text(i)) {
+            (Err(_), Some(t)) => String::from_utf8_lossy(t),
+            _ => return as_number?.ok_or_else(|| "expiry is missing".to_string()),
+        };
+        if !dates::looks_like_date(&field) {
+            return as_number?.ok_or_else(|| "expiry is missing".to_string());
+        }
+        let valuation = match self.valuation_date.as_ref().and_then(|c| c.text(i)) {
+            Some(v) => dates::valuation_field(&String::from_utf8_lossy(v), self.default_valuation)?,
+            None => self.default_valuation,
+        };
+        dates::dated_expiry("expiry", &field, valuation)
+    }
+
     /// Row `i` as a validated contract, or the message of its first problem
     /// (the same words the CSV reader uses, without the line).
     pub fn contract(&self, i: usize) -> Result<Contract, String> {
@@ -229,7 +269,7 @@ impl<'a> ColumnBook<'a> {
         };
         let spot = self.spot.required(i, "spot")?;
         let strike = self.strike.required(i, "strike")?;
-        let expiry = self.expiry.required(i, "expiry")?;
+        let expiry = self.expiry_years(i)?;
         let rate = self.rate.required(i, "rate")?;
         let vol = self.vol.required(i, "vol")?;
         let jump_rate = self.jump_rate.required(i, "jump_rate")?;
@@ -264,6 +304,9 @@ pub struct PricedColumns {
     pub values: Vec<Vec<f64>>,
     /// `implied_vol`, when asked for (NaN where it does not exist; the status says why).
     pub implied_vol: Option<Vec<f64>>,
+    /// `expiry_years`, the year fraction used, when the book is dated
+    /// ([`ColumnBook::dated`]; NaN on a failed row).
+    pub expiry_years: Option<Vec<f64>>,
     /// Series terms (NaN on a failed row).
     pub terms: Vec<f64>,
     /// `ok`, `warning: row N: ...` or `error: row N: ...`.
@@ -272,6 +315,7 @@ pub struct PricedColumns {
 
 /// Outcome of one row: values, implied vol, terms, status.
 struct RowOut {
+    expiry_years: f64,
     values: [f64; 10],
     implied_vol: f64,
     terms: f64,
@@ -280,6 +324,7 @@ struct RowOut {
 
 fn failed(i: usize, message: &str) -> RowOut {
     RowOut {
+        expiry_years: f64::NAN,
         values: [f64::NAN; 10],
         implied_vol: f64::NAN,
         terms: f64::NAN,
@@ -317,6 +362,7 @@ fn price_row(book: &ColumnBook<'_>, i: usize, with_iv: bool) -> RowOut {
         }
     }
     RowOut {
+        expiry_years: c.expiry,
         values,
         implied_vol: iv,
         terms: r.terms as f64,
@@ -347,6 +393,8 @@ pub fn price_columns(
         .collect();
     let mut values: Vec<Vec<f64>> = (0..10).map(|_| Vec::with_capacity(n)).collect();
     let mut iv = Vec::with_capacity(if with_implied_vol { n } else { 0 });
+    let dated = book.dated();
+    let mut years = Vec::with_capacity(if dated { n } else { 0 });
     let mut terms = Vec::with_capacity(n);
     let mut status = Vec::with_capacity(n);
     for row in chunks.into_iter().flatten() {
@@ -356,12 +404,16 @@ pub fn price_columns(
         if with_implied_vol {
             iv.push(row.implied_vol);
         }
+        if dated {
+            years.push(row.expiry_years);
+        }
         terms.push(row.terms);
         status.push(row.status);
     }
     Ok(PricedColumns {
         values,
         implied_vol: with_implied_vol.then_some(iv),
+        expiry_years: dated.then_some(years),
         terms,
         status,
     })
@@ -401,6 +453,8 @@ mod tests {
             div_yield: None,
             quantity: None,
             multiplier: None,
+            valuation_date: None,
+            default_valuation: None,
         };
         let out = price_columns(&book, false).unwrap();
         assert_eq!(out.status[0], "ok");
@@ -437,6 +491,8 @@ mod tests {
             div_yield: Some(Column::Numbers(&x)),
             quantity: None,
             multiplier: None,
+            valuation_date: None,
+            default_valuation: None,
         };
         let out = price_columns(&book, false).unwrap();
         assert_eq!(out.status[0], "error: row 0: rate is missing");

@@ -14,7 +14,10 @@ use saltus::engines::pide::Exercise;
 use saltus::engines::series;
 use saltus::greeks::DESK_COLUMNS;
 use saltus::reports::risk::{self, PositionRef, RiskAccumulator, ScenarioSpec};
-use saltus::reports::risk_report::{self, ScenarioFailureWriter, SCENARIO_FAILURES_FILE};
+use saltus::reports::risk_report::{
+    self, ReportMeta, ScenarioFailureWriter, SCENARIO_FAILURES_FILE, USER_SCENARIOS_FILE,
+};
+use saltus::reports::user_scenarios::ScenarioFile;
 use std::fs::File;
 use std::io::{BufWriter, Write};
 use std::path::PathBuf;
@@ -23,9 +26,10 @@ use std::time::Instant;
 
 /// The files of a report: an existing output directory holding anything
 /// else is refused, since it is replaced as a whole.
-const REPORT_FILES: [&str; 7] = [
+const REPORT_FILES: [&str; 8] = [
     "positions.csv",
     SCENARIO_FAILURES_FILE,
+    USER_SCENARIOS_FILE,
     "totals.csv",
     "scenarios.csv",
     "jump_scenarios.csv",
@@ -45,15 +49,24 @@ div_rho_1pct, d_jump_rate, d_jump_mean_1pct, d_jump_vol_1pct, position_value, st
 totals.csv             underlying, positions, value, delta, delta_cash, gamma, gamma_cash_1pct, vega_1pt, \
 theta_1d, rho_1pct, div_rho_1pct, d_jump_rate, d_jump_mean_1pct, d_jump_vol_1pct, level, status \
 (desk units; one row per underlying, then the book row)\n  \
-scenarios.csv          underlying, spot_shock, vol_shock, pnl, level, rows_failed, status: \
+scenarios.csv          underlying, spot_shock_pct, vol_shock_pts, pnl, level, rows_failed, status: \
 full-revaluation P&L on the spot x vol grid\n  \
-jump_scenarios.csv     underlying, scenario, jump_size, pnl, level, rows_failed, status: an instantaneous \
-jump by the model mean jump and by each --jump-shock\n  \
-greeks_vs_spot.csv     underlying, spot_shock, delta_cash, gamma_cash_1pct, vega_1pt, level, rows_failed, \
-status\n  \
-scenario_failures.csv  line, id, underlying, scenario, spot_shock, vol_shock, jump_size, reason: every \
-scenario revaluation that failed\n  \
+jump_scenarios.csv     underlying, scenario, jump_size_pct, pnl, level, rows_failed, status: an \
+instantaneous jump by the model mean jump (the book row: each underlying by its own, jump_size_pct \
+empty) and by each --jump-shock\n  \
+greeks_vs_spot.csv     underlying, spot_shock_pct, delta_cash, gamma_cash_1pct, vega_1pt, level, \
+rows_failed, status\n  \
+scenarios_user.csv     scenario, underlying, pnl, level, rows_failed, status: each named scenario of \
+--scenarios, per underlying and for the book\n  \
+scenario_failures.csv  line, id, underlying, scenario, spot_shock_pct, vol_shock_pts, jump_size_pct, \
+reason, user_scenario: every scenario revaluation that failed\n  \
 report.html            all of the above with SVG charts, self-contained\n\
+Shocks are written in the units of the options: percent (_pct) and vol points (_pts).\n\
+The scenario file (--scenarios): columns scenario, underlying (a name, or * for every underlying), \
+spot_shock_pct, vol_shock_pts, and optionally jump_rate_mult, jump_mean_shift, jump_vol_shift, \
+rate_shift_bp; an empty field is no change; rows with one scenario name make one scenario, and an \
+underlying's own row wins over *. A bad row is reported with its line and column and its scenario \
+is not computed.\n\
 American rows (column exercise) are priced as by price (the PIDE, to --pide-tol) and revalued \
 by the PIDE in every scenario (about 130 PIDE prices per row with the default shocks: slow).\n\
 Positions are quantity x multiplier (optional columns, default 1) and grouped by `underlying`.\n\
@@ -66,8 +79,8 @@ Rows that fail keep their status in positions.csv, are listed in the report (the
 excluded from every total. Memory depends on the number of underlyings and scenarios, not rows.\n\
 Accepted shocks: spot and jump above -100% and at most +1000%; vol -100 to +100 points; \
 at most 100 values per list, none repeated.\n\
-Exit codes: 0 every row priced and revalued; 1 some rows or scenario revaluations failed, or an \
-aggregate overflowed; ",
+Exit codes: 0 every row priced and revalued; 1 some rows or scenario revaluations failed, an \
+aggregate overflowed, or the scenario file has bad rows; ",
     exit_2!()
 ))]
 pub struct Args {
@@ -92,9 +105,19 @@ pub struct Args {
         allow_hyphen_values = true
     )]
     pub vol_shocks: String,
-    /// Instantaneous jump sizes of the underlying in percent (repeatable).
-    #[arg(long, value_name = "PCT", default_values = ["-20"], allow_hyphen_values = true)]
+    /// Instantaneous jumps of every underlying in percent, comma-separated
+    /// (repeatable).
+    #[arg(
+        long,
+        value_name = "LIST",
+        default_values = ["-20,+15"],
+        allow_hyphen_values = true
+    )]
     pub jump_shock: Vec<String>,
+    /// Named scenarios to revalue (CSV: scenario, underlying, spot_shock_pct,
+    /// vol_shock_pts, ...; see below).
+    #[arg(long, value_name = "SCEN.csv")]
+    pub scenarios: Option<PathBuf>,
     /// Title of the HTML report.
     #[arg(long, default_value = "Book risk report")]
     pub title: String,
@@ -107,8 +130,9 @@ pub struct Args {
     pub quiet: bool,
 }
 
-/// Parses a comma-separated list of numbers in percent (or vol points) and
-/// checks each value, as a fraction, with `problem`.
+/// Parses a comma-separated list of numbers in percent (or vol points),
+/// returned in those units, and checks each value, as a fraction, with
+/// `problem`.
 fn parse_list<'a>(
     option: &str,
     parts: impl Iterator<Item = &'a str>,
@@ -124,14 +148,13 @@ fn parse_list<'a>(
         let x: f64 = p
             .parse()
             .map_err(|_| anyhow!("{option}: '{}' is not a number", p.escape_debug()))?;
-        let frac = x / 100.0;
-        if let Some(why) = problem(frac) {
+        if let Some(why) = problem(x / 100.0) {
             bail!("{option}: {p}{unit} {why}");
         }
-        if let Some((_, q)) = seen.iter().find(|(y, _)| *y == frac) {
+        if let Some((_, q)) = seen.iter().find(|(y, _)| *y == x) {
             bail!("{option}: {p} is given twice (also as {q})");
         }
-        seen.push((frac, p));
+        seen.push((x, p));
     }
     Ok(seen.into_iter().map(|(x, _)| x).collect())
 }
@@ -160,7 +183,7 @@ fn scenario_spec(args: &Args) -> Result<ScenarioSpec> {
     )?;
     let jump = parse_list(
         "--jump-shock",
-        args.jump_shock.iter().map(String::as_str),
+        args.jump_shock.iter().flat_map(|s| s.split(',')),
         "%",
         risk::spot_shock_problem,
     )?;
@@ -170,8 +193,15 @@ fn scenario_spec(args: &Args) -> Result<ScenarioSpec> {
 /// Runs the command.
 pub fn run(args: Args) -> Result<ExitCode> {
     let start = Instant::now();
-    let spec = scenario_spec(&args)?;
+    let mut spec = scenario_spec(&args)?;
     let pide_cfg = args.pide.config()?;
+    let scenario_file = match &args.scenarios {
+        Some(p) => Some(ScenarioFile::read(p).map_err(|e| anyhow!("--scenarios: {e}"))?),
+        None => None,
+    };
+    if let Some(f) = &scenario_file {
+        spec = spec.with_user(f.scenarios.clone());
+    }
     // Everything is written into a staging directory, swapped in at the end.
     let staged = OutputDir::stage(&args.output, &args.book, &REPORT_FILES)?;
     let out_dir = staged.path().to_path_buf();
@@ -190,10 +220,13 @@ pub fn run(args: Args) -> Result<ExitCode> {
         File::create(&positions_path)
             .with_context(|| format!("cannot create {}", positions_path.display()))?,
     );
-    let mut failures_out = ScenarioFailureWriter::new(BufWriter::new(
-        File::create(&failures_path)
-            .with_context(|| format!("cannot create {}", failures_path.display()))?,
-    ))?;
+    let mut failures_out = ScenarioFailureWriter::new(
+        BufWriter::new(
+            File::create(&failures_path)
+                .with_context(|| format!("cannot create {}", failures_path.display()))?,
+        ),
+        spec.user.iter().map(|u| u.name.clone()).collect(),
+    )?;
     let mut total = RiskAccumulator::default();
     let spec_ref = &spec;
     let summary = run_book_with_state(
@@ -210,11 +243,11 @@ pub fn run(args: Args) -> Result<ExitCode> {
                         .greeks
                 }
             };
-            let id = row.id();
+            // The line is the row's reference; the id only when the book has one.
             let p = PositionRef {
                 row: row.row,
                 line: row.line,
-                id: &id,
+                id: row.explicit_id().unwrap_or(""),
                 underlying: row.underlying,
                 contract: row.contract,
                 weight: row.quantity * row.multiplier,
@@ -244,7 +277,28 @@ pub fn run(args: Args) -> Result<ExitCode> {
         .flush()
         .with_context(|| format!("cannot write {}", failures_path.display()))?;
     let report = total.finish(spec);
-    risk_report::write_all(&out_dir, &report, &args.title)?;
+    let mut meta = ReportMeta {
+        title: args.title.clone(),
+        input: args.book.display().to_string(),
+        valuation_date: args.inputs.valuation_date.map(|d| d.to_string()),
+        params: args.inputs.params.as_ref().map(|p| p.display().to_string()),
+        ..ReportMeta::default()
+    };
+    if let Some(f) = &scenario_file {
+        meta.scenario_file = Some(f.source.clone());
+        meta.scenario_problems = f.problems.clone();
+        let mut unknown: Vec<String> = f
+            .scenarios
+            .iter()
+            .flat_map(|s| s.by_underlying.keys())
+            .filter(|u| !report.by_underlying.contains_key(*u))
+            .cloned()
+            .collect();
+        unknown.sort();
+        unknown.dedup();
+        meta.scenario_unknown_underlyings = unknown;
+    }
+    risk_report::write_all(&out_dir, &report, &meta)?;
     staged.commit()?;
     let problems = report.aggregate_problems();
     if !args.quiet {
@@ -262,6 +316,25 @@ pub fn run(args: Args) -> Result<ExitCode> {
                 args.output.join(SCENARIO_FAILURES_FILE).display()
             );
         }
+        for p in meta.scenario_problems.iter().take(20) {
+            eprintln!(
+                "saltus: {}: {}",
+                meta.scenario_file.as_deref().unwrap_or(""),
+                p.message
+            );
+        }
+        if meta.scenario_problems.len() > 20 {
+            eprintln!(
+                "saltus: ... and {} more bad scenario rows",
+                meta.scenario_problems.len() - 20
+            );
+        }
+        if !meta.scenario_unknown_underlyings.is_empty() {
+            eprintln!(
+                "saltus: the scenario file names underlyings not in the book: {}",
+                meta.scenario_unknown_underlyings.join(", ")
+            );
+        }
         for p in problems.iter().take(20) {
             eprintln!("saltus: aggregate not finite: {p}");
         }
@@ -272,12 +345,21 @@ pub fn run(args: Args) -> Result<ExitCode> {
             );
         }
         eprintln!(
-            "saltus: report written to {} (report.html, totals.csv, scenarios.csv, jump_scenarios.csv, greeks_vs_spot.csv, {SCENARIO_FAILURES_FILE}, positions.csv)",
-            args.output.display()
+            "saltus: report written to {} (report.html, totals.csv, scenarios.csv, jump_scenarios.csv, greeks_vs_spot.csv, {}{SCENARIO_FAILURES_FILE}, positions.csv)",
+            args.output.display(),
+            if meta.scenario_file.is_some() {
+                format!("{USER_SCENARIOS_FILE}, ")
+            } else {
+                String::new()
+            }
         );
     }
     Ok(
-        if summary.failed > 0 || report.scenario_failures > 0 || !problems.is_empty() {
+        if summary.failed > 0
+            || report.scenario_failures > 0
+            || !problems.is_empty()
+            || !meta.scenario_problems.is_empty()
+        {
             ExitCode::from(1)
         } else {
             ExitCode::SUCCESS

@@ -73,20 +73,8 @@ impl FittedParams {
             .byte_headers()
             .map_err(|e| format!("{source}: {e}"))?
             .clone();
-        let names: Vec<String> = headers
-            .iter()
-            .map(|h| String::from_utf8_lossy(h).trim().to_ascii_lowercase())
-            .collect();
-        let find = |col: &str| -> Result<Option<usize>, String> {
-            let mut hits = names.iter().enumerate().filter(|(_, n)| *n == col);
-            let first = hits.next().map(|(i, _)| i);
-            if hits.next().is_some() {
-                return Err(format!(
-                    "{source}: column '{col}' appears more than once in the header"
-                ));
-            }
-            Ok(first)
-        };
+        let names = crate::book::header::names(&headers);
+        let find = |col: &str| crate::book::header::find(&names, col, source);
         if find("expiry")?.is_some() {
             return Err(format!(
                 "{source} has an expiry column: it holds one parameter set per underlying and \

@@ -6,12 +6,13 @@
 //! finite (a standard error of an unidentified parameter, the condition
 //! number of a singular problem) is left empty, never written as NaN/inf.
 
-use super::html::{esc, PALETTE};
+use super::chart::{xy_chart, Layer, Marks, XyChart, LINE_COLOURS};
+use super::html::{esc, page, scroll};
 use crate::book::writer::write_field;
 use crate::market::calibrate::{model_price, model_vol, usable, CalibrationSpec, Fit, PARAM_NAMES};
 use crate::market::quotes::{Quote, QuoteSheet};
 use crate::model::OptionKind;
-use plotters::prelude::*;
+use plotters::style::RGBColor;
 use std::fmt::Write as _;
 use std::io::{self, Write};
 
@@ -310,9 +311,8 @@ fn extent(values: impl Iterator<Item = f64>) -> Option<(f64, f64)> {
 
 /// Market vols with bid/ask bars and the model smile against strike, in %.
 fn smile_chart(title: &str, quotes: &[&Quote], params: Option<[f64; 4]>) -> String {
-    let mut svg = String::new();
     let Some((k0, k1)) = extent(quotes.iter().map(|q| q.strike)) else {
-        return svg;
+        return String::new();
     };
     let curve: Vec<(f64, f64)> = match params {
         Some(p) if k1 > k0 => {
@@ -336,125 +336,76 @@ fn smile_chart(title: &str, quotes: &[&Quote], params: Option<[f64; 4]>) -> Stri
         }
         _ => Vec::new(),
     };
-    let ys = quotes
+    let bars: Vec<(f64, f64, f64)> = quotes
         .iter()
-        .flat_map(|q| [q.vol_range.0, q.vol_range.1, q.market_vol])
-        .flatten()
-        .map(|v| 100.0 * v)
-        .chain(curve.iter().map(|p| p.1));
-    let (lo, hi) = extent(ys).unwrap_or((0.0, 1.0));
-    let pad = ((hi - lo) * 0.08).max(0.05);
-    let kpad = ((k1 - k0) * 0.04).max(1e-9 * k1.abs().max(1.0));
-    {
-        let root = SVGBackend::with_string(&mut svg, (520, 320)).into_drawing_area();
-        let _ = root.fill(&WHITE);
-        let chart = ChartBuilder::on(&root)
-            .caption(title, ("sans-serif", 15))
-            .margin(10)
-            .x_label_area_size(36)
-            .y_label_area_size(56)
-            .build_cartesian_2d((k0 - kpad)..(k1 + kpad), (lo - pad)..(hi + pad));
-        if let Ok(mut chart) = chart {
-            let _ = chart
-                .configure_mesh()
-                .x_desc("strike")
-                .y_desc("implied vol (%)")
-                .light_line_style(RGBColor(235, 235, 235))
-                .draw();
-            let bar = ShapeStyle {
-                color: RGBColor(150, 150, 150).to_rgba(),
-                filled: false,
-                stroke_width: 1,
-            };
-            for q in quotes {
-                if let (Some(b), Some(a)) = q.vol_range {
-                    if a > b {
-                        let _ = chart.draw_series(std::iter::once(PathElement::new(
-                            vec![(q.strike, 100.0 * b), (q.strike, 100.0 * a)],
-                            bar,
-                        )));
-                    }
-                }
-            }
-            let pts = quotes
-                .iter()
-                .filter_map(|q| q.market_vol.map(|v| (q.strike, 100.0 * v)));
-            if let Ok(s) = chart
-                .draw_series(pts.map(|p| Circle::new(p, 3, ShapeStyle::from(&PALETTE[0]).filled())))
-            {
-                s.label("market (mid, bid/ask bars)")
-                    .legend(|(x, y)| Circle::new((x + 8, y), 3, PALETTE[0].filled()));
-            }
-            if !curve.is_empty() {
-                let style = ShapeStyle {
-                    color: PALETTE[3].to_rgba(),
-                    filled: false,
-                    stroke_width: 2,
-                };
-                if let Ok(s) = chart.draw_series(LineSeries::new(curve, style)) {
-                    s.label("model")
-                        .legend(move |(x, y)| PathElement::new(vec![(x, y), (x + 16, y)], style));
-                }
-            }
-        }
-        let _ = root.present();
+        .filter_map(|q| match q.vol_range {
+            (Some(b), Some(a)) if a > b => Some((q.strike, 100.0 * b, 100.0 * a)),
+            _ => None,
+        })
+        .collect();
+    let mut layers = Vec::new();
+    if !bars.is_empty() {
+        layers.push(Layer {
+            label: Some("bid to ask".into()),
+            colour: RGBColor(150, 150, 150),
+            marks: Marks::Bars(bars),
+        });
     }
-    svg
+    layers.push(Layer {
+        label: Some("market (mid)".into()),
+        colour: LINE_COLOURS[0],
+        marks: Marks::Dots(
+            quotes
+                .iter()
+                .filter_map(|q| q.market_vol.map(|v| (q.strike, 100.0 * v)))
+                .collect(),
+        ),
+    });
+    if !curve.is_empty() {
+        layers.push(Layer {
+            label: Some("model".into()),
+            colour: LINE_COLOURS[1],
+            marks: Marks::Line(curve, 2),
+        });
+    }
+    xy_chart(&XyChart {
+        title,
+        x_desc: "strike",
+        y_desc: "implied vol (%)",
+        size: (560, 320),
+        layers,
+        y_symmetric: false,
+    })
 }
 
 /// Residuals in vol points against strike, one colour per expiry.
 fn residual_chart(title: &str, points: &[(f64, f64, f64)], expiries: &[f64]) -> String {
-    let mut svg = String::new();
-    let Some((k0, k1)) = extent(points.iter().map(|p| p.1)) else {
-        return svg;
-    };
-    let (lo, hi) = extent(points.iter().map(|p| p.2)).unwrap_or((-1.0, 1.0));
-    let m = lo.abs().max(hi.abs()).max(1e-12) * 1.15;
-    let kpad = ((k1 - k0) * 0.04).max(1e-9 * k1.abs().max(1.0));
-    {
-        let root = SVGBackend::with_string(&mut svg, (1040, 340)).into_drawing_area();
-        let _ = root.fill(&WHITE);
-        let chart = ChartBuilder::on(&root)
-            .caption(title, ("sans-serif", 15))
-            .margin(10)
-            .x_label_area_size(36)
-            .y_label_area_size(70)
-            .build_cartesian_2d((k0 - kpad)..(k1 + kpad), -m..m);
-        if let Ok(mut chart) = chart {
-            let _ = chart
-                .configure_mesh()
-                .x_desc("strike")
-                .y_desc("model - market (vol points)")
-                .light_line_style(RGBColor(235, 235, 235))
-                .y_label_formatter(&|y| {
-                    if m >= 0.01 {
-                        format!("{y:.2}")
-                    } else {
-                        format!("{y:.1e}")
-                    }
-                })
-                .draw();
-            for (i, &e) in expiries.iter().enumerate() {
-                let c = PALETTE[i % PALETTE.len()];
-                let pts = points
+    if points.is_empty() {
+        return String::new();
+    }
+    let layers = expiries
+        .iter()
+        .enumerate()
+        .map(|(i, &e)| Layer {
+            label: Some(format!("T = {e}")),
+            colour: LINE_COLOURS[i % LINE_COLOURS.len()],
+            marks: Marks::Dots(
+                points
                     .iter()
                     .filter(|p| p.0 == e)
-                    .map(|p| Circle::new((p.1, p.2), 3, c.filled()));
-                if let Ok(s) = chart.draw_series(pts) {
-                    s.label(format!("T = {e}"))
-                        .legend(move |(x, y)| Circle::new((x + 8, y), 3, c.filled()));
-                }
-            }
-            let _ = chart
-                .configure_series_labels()
-                .background_style(WHITE.mix(0.85))
-                .border_style(RGBColor(200, 200, 200))
-                .position(SeriesLabelPosition::UpperRight)
-                .draw();
-        }
-        let _ = root.present();
-    }
-    svg
+                    .map(|p| (p.1, p.2))
+                    .collect(),
+            ),
+        })
+        .collect();
+    xy_chart(&XyChart {
+        title,
+        x_desc: "strike",
+        y_desc: "model \u{2212} market (vol points)",
+        size: (1040, 340),
+        layers,
+        y_symmetric: true,
+    })
 }
 
 fn cell(x: Option<f64>, digits: usize) -> String {
@@ -613,7 +564,7 @@ pub fn html(
         }
         sections.push_str(
             "<p class=\"note\">Blue dots: market implied vol of the mid; grey bars: bid to ask; \
-             red line: the fitted model's implied vol.</p><div class=\"grid\">",
+             vermillion line: the fitted model's implied vol.</p><div class=\"grid\">",
         );
         for &e in expiries.iter().take(MAX_CHARTS) {
             let qs: Vec<&Quote> = quotes.iter().copied().filter(|q| q.expiry == e).collect();
@@ -645,20 +596,8 @@ pub fn html(
             "price residuals divided by Black-Scholes vega"
         }
     };
-    format!(
-        r#"<!DOCTYPE html>
-<html lang="en"><head><meta charset="utf-8"><title>{title}</title>
-<style>
-body {{ font-family: sans-serif; margin: 24px auto; max-width: 1100px; color: #222; }}
-h1 {{ font-size: 22px; }} h2 {{ font-size: 18px; margin-top: 32px; border-bottom: 1px solid #ddd; }}
-table {{ border-collapse: collapse; font-size: 13px; margin: 8px 0; }}
-th, td {{ border: 1px solid #ddd; padding: 4px 8px; text-align: right; }}
-th {{ background: #f4f4f4; }} td:first-child, th:first-child {{ text-align: left; }}
-.warn {{ color: #a00; }} .note {{ color: #555; font-size: 13px; }}
-.grid {{ display: flex; flex-wrap: wrap; gap: 8px; }} figure {{ margin: 6px 0; }}
-</style></head><body>
-<h1>{title}</h1>
-<p class="note">Merton jump-diffusion fitted by Levenberg-Marquardt with the exact Jacobian: weighted least squares of {objective}
+    let body = format!(
+        r#"<p class="note">Merton jump-diffusion fitted by Levenberg-Marquardt with the exact Jacobian: weighted least squares of {objective}
 (weight 1 / half-spread in vol for bid/ask quotes). Standard errors from (J<sup>T</sup>WJ)<sup>-1</sup> times the residual variance.
 A fit is only as good as its quotes: validate and use under your firm's model-risk policy.</p>
 <h2>Parameters</h2>
@@ -666,10 +605,9 @@ A fit is only as good as its quotes: validate and use under your firm's model-ri
 <h2>Quote rows</h2>
 {problems}
 {sections}
-</body></html>
 "#,
-        title = esc(title),
-        params = params_table(fits, spec.per_expiry),
+        params = scroll(&params_table(fits, spec.per_expiry)),
         problems = problem_rows(outcomes),
-    )
+    );
+    page(title, &body)
 }

@@ -5,9 +5,11 @@
 //! desk units (see [`Exposure`]). Scenarios reprice every position with the
 //! series engine at shocked inputs, never through a Greek approximation:
 //! a grid of spot shocks (relative) crossed with vol shocks (absolute vol
-//! points, the shocked vol floored at 0), and instantaneous jumps of the
-//! underlying (by each position's model mean jump `k`, and by user-given
-//! sizes).
+//! points, the shocked vol floored at 0), instantaneous jumps of the
+//! underlying (by each position's model mean jump `k`, and by each
+//! `--jump-shock` size), and the named scenarios of a scenario file
+//! ([`crate::reports::user_scenarios`], each a [`Shock`] per underlying).
+//! Every shock goes through one revaluation function, [`revalue_shocked`].
 //!
 //! # Design: constant memory, fixed summation order
 //!
@@ -41,7 +43,8 @@ use crate::engines::pide::{self, Exercise, PideConfig, PideEngine};
 use crate::engines::{series, Priced};
 use crate::greeks::finite_diff::{self, FdConfig};
 use crate::greeks::{Greeks, DAYS_PER_YEAR, DESK_COLUMNS};
-use crate::model::Contract;
+use crate::model::{Contract, JumpParams};
+use crate::reports::user_scenarios::UserScenario;
 use std::collections::BTreeMap;
 use std::fmt;
 
@@ -287,23 +290,76 @@ pub fn exposure_of(p: &PositionRef) -> Result<Exposure, String> {
 }
 
 /// The scenarios to run. Build it with [`ScenarioSpec::new`], which
-/// validates every value.
+/// validates every value; the fractions are the flag values divided by 100
+/// (the same division as a scenario file's, so equal shocks give equal
+/// digits).
 #[derive(Debug, Clone, PartialEq)]
 pub struct ScenarioSpec {
     /// Relative spot shocks (e.g. -0.3 .. 0.3), ascending.
     pub spot_shocks: Vec<f64>,
     /// Absolute vol shocks (0.01 = one vol point), ascending.
     pub vol_shocks: Vec<f64>,
-    /// User-given instantaneous relative jumps of the underlying, as given.
+    /// Instantaneous relative jumps of every underlying, as given.
     pub jump_shocks: Vec<f64>,
+    /// `spot_shocks` in percent, as given.
+    pub spot_shocks_pct: Vec<f64>,
+    /// `vol_shocks` in vol points, as given.
+    pub vol_shocks_pts: Vec<f64>,
+    /// `jump_shocks` in percent, as given.
+    pub jump_shocks_pct: Vec<f64>,
+    /// Named scenarios of a scenario file (those with a bad row are listed
+    /// but not computed).
+    pub user: Vec<UserScenario>,
 }
 
 impl Default for ScenarioSpec {
     fn default() -> Self {
-        ScenarioSpec {
-            spot_shocks: (-6..=6).map(|i| f64::from(i) * 5.0 / 100.0).collect(),
-            vol_shocks: (-4..=4).map(|i| f64::from(i) * 2.5 / 100.0).collect(),
-            jump_shocks: vec![-0.2],
+        ScenarioSpec::new(
+            (-6..=6).map(|i| f64::from(i) * 5.0).collect(),
+            (-4..=4).map(|i| f64::from(i) * 2.5).collect(),
+            vec![-20.0, 15.0],
+        )
+        .expect("the default shocks are valid")
+    }
+}
+
+/// The shocks of one scenario for one position, as fractions: the spot is
+/// multiplied by `1 + spot`, `vol` is added to the diffusion vol (the
+/// result floored at 0), the jump rate multiplied by `jump_rate_mult`,
+/// the shifts added to the jump mean and vol, `rate_shift` added to the rate.
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub struct Shock {
+    /// Relative spot shock.
+    pub spot: f64,
+    /// Absolute vol shock.
+    pub vol: f64,
+    /// Multiplier of the jump rate.
+    pub jump_rate_mult: f64,
+    /// Added to the mean log jump.
+    pub jump_mean_shift: f64,
+    /// Added to the log-jump vol.
+    pub jump_vol_shift: f64,
+    /// Added to the rate (0.0001 = one basis point).
+    pub rate_shift: f64,
+}
+
+impl Shock {
+    /// No change.
+    pub const NONE: Shock = Shock {
+        spot: 0.0,
+        vol: 0.0,
+        jump_rate_mult: 1.0,
+        jump_mean_shift: 0.0,
+        jump_vol_shift: 0.0,
+        rate_shift: 0.0,
+    };
+
+    /// A spot and vol shock only.
+    pub fn spot_vol(spot: f64, vol: f64) -> Shock {
+        Shock {
+            spot,
+            vol,
+            ..Shock::NONE
         }
     }
 }
@@ -348,11 +404,19 @@ impl ScenarioSpec {
     /// [`SpecError`] for an empty spot or vol list, more than [`MAX_SHOCKS`]
     /// values in a list, a value repeated, or a value outside its range
     /// ([`spot_shock_problem`], [`vol_shock_problem`]).
+    /// Values are in the flags' units: spot and jump shocks in percent, vol
+    /// shocks in vol points.
     pub fn new(
-        mut spot_shocks: Vec<f64>,
-        mut vol_shocks: Vec<f64>,
-        jump_shocks: Vec<f64>,
+        spot_shocks_pct: Vec<f64>,
+        vol_shocks_pts: Vec<f64>,
+        jump_shocks_pct: Vec<f64>,
     ) -> Result<ScenarioSpec, SpecError> {
+        let frac = |xs: &[f64]| xs.iter().map(|x| x / 100.0).collect::<Vec<f64>>();
+        let (spot_shocks, vol_shocks, jump_shocks) = (
+            frac(&spot_shocks_pct),
+            frac(&vol_shocks_pts),
+            frac(&jump_shocks_pct),
+        );
         let check = |list: &'static str,
                      xs: &[f64],
                      allow_empty: bool,
@@ -401,16 +465,29 @@ impl ScenarioSpec {
             (100.0, "%"),
             spot_shock_problem,
         )?;
-        for x in spot_shocks.iter_mut().chain(vol_shocks.iter_mut()) {
-            *x += 0.0; // -0 is 0
-        }
-        spot_shocks.sort_by(f64::total_cmp);
-        vol_shocks.sort_by(f64::total_cmp);
+        let sorted = |mut xs: Vec<f64>| {
+            for x in xs.iter_mut() {
+                *x += 0.0; // -0 is 0
+            }
+            xs.sort_by(f64::total_cmp);
+            xs
+        };
+        let (spot_shocks_pct, vol_shocks_pts) = (sorted(spot_shocks_pct), sorted(vol_shocks_pts));
         Ok(ScenarioSpec {
-            spot_shocks,
-            vol_shocks,
+            spot_shocks: frac(&spot_shocks_pct),
+            vol_shocks: frac(&vol_shocks_pts),
             jump_shocks,
+            spot_shocks_pct,
+            vol_shocks_pts,
+            jump_shocks_pct,
+            user: Vec::new(),
         })
+    }
+
+    /// The same spec with the named scenarios of a scenario file.
+    pub fn with_user(mut self, user: Vec<UserScenario>) -> ScenarioSpec {
+        self.user = user;
+        self
     }
 
     fn cells(&self) -> usize {
@@ -462,10 +539,18 @@ pub struct CurvePoint {
 pub struct GroupScenarios {
     /// P&L on the grid, `grid[i][j]` for spot shock `i` and vol shock `j`.
     pub grid: Vec<Vec<Cell>>,
-    /// P&L of each jump scenario: the model mean jump first, then the user sizes.
+    /// P&L of each jump scenario: the model mean jump first (each position
+    /// by its own `k`), then each `--jump-shock` size.
     pub jumps: Vec<Cell>,
-    /// Weighted mean of `k` over the group's positions (weights `|w|`, for display).
+    /// Weighted mean of `k` over the group's positions (weights `|w|`, for
+    /// display; meaningless for the book, whose underlyings jump by their own).
     pub mean_model_jump: f64,
+    /// Smallest and largest `k` of the group's positions (equal when they
+    /// share the jump parameters); `(inf, -inf)` for an empty group.
+    pub model_jump_range: (f64, f64),
+    /// P&L of each named scenario of [`ScenarioSpec::user`] (zero, with no
+    /// row counted, for a scenario not computed).
+    pub user: Vec<Cell>,
     /// Cash delta, gamma and vega per vol point at each spot shock.
     pub greeks_vs_spot: Vec<CurvePoint>,
 }
@@ -495,6 +580,15 @@ pub enum ScenarioKind {
         /// The relative jump.
         jump_size: f64,
     },
+    /// A named scenario of the scenario file.
+    User {
+        /// Its place in [`ScenarioSpec::user`].
+        index: usize,
+        /// The row's relative spot shock in that scenario.
+        spot_shock: f64,
+        /// The row's absolute vol shock in that scenario.
+        vol_shock: f64,
+    },
 }
 
 impl ScenarioKind {
@@ -505,6 +599,7 @@ impl ScenarioKind {
             ScenarioKind::GreeksVsSpot { .. } => "greeks_vs_spot",
             ScenarioKind::ModelMeanJump { .. } => "model_mean_jump",
             ScenarioKind::GivenJump { .. } => "given_jump",
+            ScenarioKind::User { .. } => "user",
         }
     }
 }
@@ -532,6 +627,7 @@ impl fmt::Display for ScenarioKind {
                 write!(f, "model mean jump ({})", pct(jump_size))
             }
             ScenarioKind::GivenJump { jump_size } => write!(f, "jump {}", pct(jump_size)),
+            ScenarioKind::User { index, .. } => write!(f, "user scenario {}", index + 1),
         }
     }
 }
@@ -562,11 +658,25 @@ pub struct FailedRow {
     pub row: u64,
     /// Line of the record in the input.
     pub line: u64,
-    /// Row id (lossy-decoded for display), or the row number when the book
-    /// has no `id` column.
+    /// Row id (lossy-decoded for display), empty when the book has no `id`
+    /// column (the line is the row's reference).
     pub id: String,
     /// Status text.
     pub status: String,
+}
+
+/// A position whose diffusion vol is below the largest negative vol shock:
+/// its shocked vol is floored at 0 in those scenarios.
+#[derive(Debug, Clone, PartialEq)]
+pub struct FlooredPosition {
+    /// Line of the record in the input.
+    pub line: u64,
+    /// The `id` field (empty when the book has none).
+    pub id: String,
+    /// The row's underlying.
+    pub underlying: String,
+    /// Its diffusion vol.
+    pub vol: f64,
 }
 
 /// Sums for one group while accumulating.
@@ -576,8 +686,11 @@ struct GroupAcc {
     grid: Vec<Cell>,
     jumps: Vec<Cell>,
     curve: Vec<CurvePoint>,
+    user: Vec<Cell>,
     abs_weight_k: f64,
     abs_weight: f64,
+    k_min: f64,
+    k_max: f64,
 }
 
 impl GroupAcc {
@@ -587,8 +700,11 @@ impl GroupAcc {
             grid: vec![Cell::default(); spec.cells()],
             jumps: vec![Cell::default(); spec.jump_shocks.len() + 1],
             curve: vec![CurvePoint::default(); spec.spot_shocks.len()],
+            user: vec![Cell::default(); spec.user.len()],
             abs_weight_k: 0.0,
             abs_weight: 0.0,
+            k_min: f64::INFINITY,
+            k_max: f64::NEG_INFINITY,
         }
     }
 
@@ -604,6 +720,9 @@ impl GroupAcc {
         for (a, x) in self.jumps.iter_mut().zip(&r.jumps) {
             add_cell(a, x);
         }
+        for (a, x) in self.user.iter_mut().zip(&r.user) {
+            add_cell(a, x);
+        }
         for (a, x) in self.curve.iter_mut().zip(&r.curve) {
             match x {
                 Some((d, g, v)) => {
@@ -616,6 +735,8 @@ impl GroupAcc {
         }
         self.abs_weight_k += r.abs_weight * r.k;
         self.abs_weight += r.abs_weight;
+        self.k_min = self.k_min.min(r.k);
+        self.k_max = self.k_max.max(r.k);
     }
 
     fn merge(&mut self, o: &GroupAcc) {
@@ -625,6 +746,7 @@ impl GroupAcc {
             .iter_mut()
             .zip(&o.grid)
             .chain(self.jumps.iter_mut().zip(&o.jumps))
+            .chain(self.user.iter_mut().zip(&o.user))
         {
             a.pnl += b.pnl;
             a.rows_failed += b.rows_failed;
@@ -637,6 +759,8 @@ impl GroupAcc {
         }
         self.abs_weight_k += o.abs_weight_k;
         self.abs_weight += o.abs_weight;
+        self.k_min = self.k_min.min(o.k_min);
+        self.k_max = self.k_max.max(o.k_max);
     }
 
     fn finish(self, spec: &ScenarioSpec) -> (Exposure, GroupScenarios) {
@@ -653,6 +777,8 @@ impl GroupAcc {
                 grid,
                 jumps: self.jumps,
                 mean_model_jump,
+                model_jump_range: (self.k_min, self.k_max),
+                user: self.user,
                 greeks_vs_spot: self.curve,
             },
         )
@@ -665,6 +791,7 @@ struct RowScenarios {
     grid: Vec<Option<f64>>,
     jumps: Vec<Option<f64>>,
     curve: Vec<Option<(f64, f64, f64)>>,
+    user: Vec<Option<f64>>,
     abs_weight: f64,
     k: f64,
 }
@@ -675,19 +802,47 @@ fn revalue(
     spot_shock: f64,
     vol_shock: f64,
 ) -> Result<Greeks, String> {
+    revalue_as(c, american, &Shock::spot_vol(spot_shock, vol_shock))
+}
+
+/// Full revaluation of `c` under `shock` (see [`Shock`]): the one place
+/// where every scenario of the report is priced (European exercise; see
+/// [`revalue_as`] for American rows).
+///
+/// # Errors
+/// A message when the shocked contract leaves the model's domain or the
+/// engine fails.
+pub fn revalue_shocked(c: &Contract, shock: &Shock) -> Result<Greeks, String> {
+    revalue_as(c, None, shock)
+}
+
+/// [`revalue_shocked`] for either exercise style: `american` = `Some(settings)`
+/// revalues by the American PIDE ([`revalue_american`]), `None` by the series.
+///
+/// # Errors
+/// As [`revalue_shocked`].
+pub fn revalue_as(
+    c: &Contract,
+    american: Option<&PideConfig>,
+    shock: &Shock,
+) -> Result<Greeks, String> {
     let shocked = Contract::new(
         c.kind,
-        c.spot * (1.0 + spot_shock),
+        c.spot * (1.0 + shock.spot),
         c.strike,
         c.expiry,
-        c.rate,
+        c.rate + shock.rate_shift,
         c.div_yield,
-        (c.vol + vol_shock).max(0.0),
-        c.jumps,
+        (c.vol + shock.vol).max(0.0),
+        JumpParams {
+            rate: c.jumps.rate * shock.jump_rate_mult,
+            mean: c.jumps.mean + shock.jump_mean_shift,
+            vol: c.jumps.vol + shock.jump_vol_shift,
+        },
     )
     .map_err(|e| format!("shocked contract: {e}"))?;
     match american {
-        Some(cfg) => revalue_american(&shocked, cfg, vol_shock == 0.0),
+        Some(cfg) => revalue_american(&shocked, cfg, shock.vol == 0.0),
         None => series::price(&shocked)
             .map(|r| r.greeks)
             .map_err(|e| format!("series engine: {e}")),
@@ -739,6 +894,7 @@ pub struct RiskAccumulator {
     groups: BTreeMap<String, GroupAcc>,
     book: Option<GroupAcc>,
     vol_floored: u64,
+    first_floored: Vec<FlooredPosition>,
     failed_rows: u64,
     first_failed_rows: Vec<FailedRow>,
     scenario_failures: u64,
@@ -751,9 +907,10 @@ impl ChunkState for RiskAccumulator {
     fn row_failed(&mut self, f: &FailedRecord<'_>) {
         self.failed_rows += 1;
         if self.first_failed_rows.len() < MAX_LISTED {
+            // The line is the row's reference; no id column, no id.
             let id = match f.id {
                 Some(raw) => String::from_utf8_lossy(raw).trim().to_string(),
-                None => f.row.to_string(),
+                None => String::new(),
             };
             self.first_failed_rows.push(FailedRow {
                 row: f.row,
@@ -850,15 +1007,48 @@ impl RiskAccumulator {
                 }
             }
         }
+        let mut user = Vec::with_capacity(spec.user.len());
+        for (index, scenario) in spec.user.iter().enumerate() {
+            let row = scenario
+                .row_for(p.underlying)
+                .filter(|_| scenario.is_valid());
+            match row {
+                // Not computed, or nothing moves for this underlying.
+                None => user.push(Some(0.0)),
+                Some(r) => match pnl(revalue_as(c, p.american.as_ref(), &r.shock)) {
+                    Ok(x) => user.push(Some(x)),
+                    Err(reason) => {
+                        user.push(None);
+                        fail(
+                            ScenarioKind::User {
+                                index,
+                                spot_shock: r.shock.spot,
+                                vol_shock: r.shock.vol,
+                            },
+                            reason,
+                        );
+                    }
+                },
+            }
+        }
         let min_vol_shock = spec.vol_shocks.iter().copied().fold(0.0, f64::min);
         if c.vol + min_vol_shock < 0.0 {
             self.vol_floored += 1;
+            if self.first_floored.len() < MAX_LISTED {
+                self.first_floored.push(FlooredPosition {
+                    line: p.line,
+                    id: p.id.to_string(),
+                    underlying: p.underlying.to_string(),
+                    vol: c.vol,
+                });
+            }
         }
         let row = RowScenarios {
             exposure: *exposure,
             grid,
             jumps,
             curve,
+            user,
             abs_weight: w.abs(),
             k,
         };
@@ -909,6 +1099,9 @@ impl RiskAccumulator {
             _ => {}
         }
         self.vol_floored += o.vol_floored;
+        let room = MAX_LISTED.saturating_sub(self.first_floored.len());
+        self.first_floored
+            .extend(o.first_floored.into_iter().take(room));
         self.failed_rows += o.failed_rows;
         let room = MAX_LISTED.saturating_sub(self.first_failed_rows.len());
         self.first_failed_rows
@@ -936,6 +1129,7 @@ impl RiskAccumulator {
             by_underlying,
             book,
             vol_floored: self.vol_floored,
+            first_floored: self.first_floored,
             failed_rows: self.failed_rows,
             first_failed_rows: self.first_failed_rows,
             scenario_failures: self.scenario_failures,
@@ -955,6 +1149,8 @@ pub struct RiskReport {
     pub book: (Exposure, GroupScenarios),
     /// Positions whose vol was floored at 0 in some scenario.
     pub vol_floored: u64,
+    /// The first [`MAX_LISTED`] of them, in row order.
+    pub first_floored: Vec<FlooredPosition>,
     /// Rows that could not be priced (excluded from everything).
     pub failed_rows: u64,
     /// The first [`MAX_LISTED`] of them, in row order.
@@ -1032,7 +1228,8 @@ impl RiskReport {
                     ));
                 }
             }
-            if !s.mean_model_jump.is_finite() || !s.jumps[0].pnl.is_finite() {
+            let k_shown = g.underlying.is_some() && !s.mean_model_jump.is_finite();
+            if k_shown || !s.jumps[0].pnl.is_finite() {
                 out.push(format!(
                     "jump_scenarios.csv, {name}, model mean jump: not finite"
                 ));
@@ -1042,6 +1239,14 @@ impl RiskReport {
                     out.push(format!(
                         "jump_scenarios.csv, {name}, jump {}%: pnl not finite",
                         short(j * 100.0)
+                    ));
+                }
+            }
+            for (u, c) in self.spec.user.iter().zip(&s.user) {
+                if !c.pnl.is_finite() {
+                    out.push(format!(
+                        "scenarios_user.csv, {name}, scenario '{}': pnl not finite",
+                        u.name
                     ));
                 }
             }
@@ -1079,14 +1284,21 @@ mod tests {
     #[test]
     fn spec_refuses_bad_values() {
         let d = ScenarioSpec::default();
-        assert!(ScenarioSpec::new(d.spot_shocks.clone(), d.vol_shocks.clone(), vec![-0.2]).is_ok());
+        // Flag units: percent and vol points.
+        assert!(ScenarioSpec::new(
+            d.spot_shocks_pct.clone(),
+            d.vol_shocks_pts.clone(),
+            vec![-20.0]
+        )
+        .is_ok());
+        assert_eq!(d.spot_shocks[0], -30.0 / 100.0);
         let bad = [
             (vec![], vec![0.0], vec![], "empty"),
             (vec![0.1, 0.1], vec![0.0], vec![], "twice"),
             (vec![f64::NAN], vec![0.0], vec![], "not a finite number"),
             (vec![1e306], vec![0.0], vec![], "outside"),
-            (vec![-1.0], vec![0.0], vec![], "outside"),
-            (vec![0.0], vec![9.95], vec![], "-100 to +100 vol points"),
+            (vec![-100.0], vec![0.0], vec![], "outside"),
+            (vec![0.0], vec![995.0], vec![], "-100 to +100 vol points"),
             (vec![0.0], vec![0.0], vec![f64::INFINITY], "not a finite"),
             (vec![0.0], vec![0.0], vec![0.1, 0.1], "twice"),
         ];

@@ -7,14 +7,24 @@
 //! `status` column: `ok`, `partial: ...` when some rows could not be
 //! revalued in that scenario (the P&L excludes them), or `error: ...` when
 //! the aggregate is not a finite number; such a value is left empty, never
-//! written as `inf` or `NaN`. `scenario_failures.csv` is streamed while the
-//! book runs ([`ScenarioFailureWriter`]); [`write_all`] writes the rest from
-//! the accumulated [`RiskReport`].
+//! written as `inf` or `NaN`. Shocks are written in the flags' units with
+//! the unit in the column name (`spot_shock_pct`, `vol_shock_pts`,
+//! `jump_size_pct`). `scenario_failures.csv` is streamed while the book
+//! runs ([`ScenarioFailureWriter`]); [`write_all`] writes the rest from the
+//! accumulated [`RiskReport`].
+//!
+//! The page ([`html`]) is built from the shared pieces in
+//! [`super::html`], [`super::chart`] and [`super::format`]: a block saying
+//! what it is a report of, tables with units in every header and one
+//! number format, line charts with the book drawn as a thick black line,
+//! and heat maps that share one colour scale with a key beside each.
 
-use super::html::{esc, PALETTE};
+use super::chart::{colour_key, heat_map, xy_chart, HeatMap, Layer, XyChart, LINE_COLOURS};
+use super::format::{compact, grouped, signed_short};
+use super::html::{esc, facts, made_at, page, scroll, th};
 pub use crate::reports::risk::FailedRow;
 use crate::reports::risk::{Cell, CurvePoint, Group, RiskReport, ScenarioFailure, ScenarioKind};
-use plotters::prelude::*;
+use crate::reports::user_scenarios::RowProblem;
 use std::fmt::Write as _;
 use std::fs;
 use std::io::Write;
@@ -25,6 +35,27 @@ use std::path::Path;
 pub const BOOK: &str = "(book)";
 /// File name of the streamed list of failed scenario revaluations.
 pub const SCENARIO_FAILURES_FILE: &str = "scenario_failures.csv";
+/// File name of the named scenarios' P&L (written with `--scenarios`).
+pub const USER_SCENARIOS_FILE: &str = "scenarios_user.csv";
+
+/// What the page says the report is of (the header block).
+#[derive(Debug, Clone, Default)]
+pub struct ReportMeta {
+    /// Title of the page.
+    pub title: String,
+    /// The book as named on the command line.
+    pub input: String,
+    /// Valuation date of rows without their own, when one was given.
+    pub valuation_date: Option<String>,
+    /// The fitted parameter file, with `--params`.
+    pub params: Option<String>,
+    /// The scenario file, with `--scenarios`.
+    pub scenario_file: Option<String>,
+    /// Bad rows of the scenario file.
+    pub scenario_problems: Vec<RowProblem>,
+    /// Underlyings named in the scenario file but absent from the book.
+    pub scenario_unknown_underlyings: Vec<String>,
+}
 
 fn csv_err(e: csv::Error) -> std::io::Error {
     std::io::Error::other(e)
@@ -54,29 +85,33 @@ fn display_name(g: &Group) -> String {
 /// scenario that could not be revalued.
 pub struct ScenarioFailureWriter<W: Write> {
     w: csv::Writer<W>,
+    names: Vec<String>,
 }
 
 impl<W: Write> ScenarioFailureWriter<W> {
-    /// Writes the header: `line, id, underlying, scenario, spot_shock,
-    /// vol_shock, jump_size, reason` (shocks and jump sizes as fractions,
-    /// empty where they do not apply).
+    /// Writes the header: `line, id, underlying, scenario, spot_shock_pct,
+    /// vol_shock_pts, jump_size_pct, reason, user_scenario` (shocks in
+    /// percent and vol points, empty where they do not apply;
+    /// `user_scenario` the name of a named scenario, from `names` in
+    /// [`crate::reports::risk::ScenarioSpec::user`] order).
     ///
     /// # Errors
     /// Any I/O error.
-    pub fn new(out: W) -> std::io::Result<Self> {
+    pub fn new(out: W, names: Vec<String>) -> std::io::Result<Self> {
         let mut w = csv::Writer::from_writer(out);
         w.write_record([
             "line",
             "id",
             "underlying",
             "scenario",
-            "spot_shock",
-            "vol_shock",
-            "jump_size",
+            "spot_shock_pct",
+            "vol_shock_pts",
+            "jump_size_pct",
             "reason",
+            "user_scenario",
         ])
         .map_err(csv_err)?;
-        Ok(ScenarioFailureWriter { w })
+        Ok(ScenarioFailureWriter { w, names })
     }
 
     /// Writes one failure.
@@ -84,16 +119,25 @@ impl<W: Write> ScenarioFailureWriter<W> {
     /// # Errors
     /// Any I/O error.
     pub fn write(&mut self, f: &ScenarioFailure) -> std::io::Result<()> {
+        let mut user = String::new();
         let (spot, vol, jump) = match f.scenario {
             ScenarioKind::Grid {
                 spot_shock,
                 vol_shock,
-            } => (fmt(spot_shock), fmt(vol_shock), String::new()),
-            ScenarioKind::GreeksVsSpot { spot_shock } => (fmt(spot_shock), fmt(0.0), String::new()),
+            }
+            | ScenarioKind::User {
+                spot_shock,
+                vol_shock,
+                ..
+            } => (pct(spot_shock), pct(vol_shock), String::new()),
+            ScenarioKind::GreeksVsSpot { spot_shock } => (pct(spot_shock), fmt(0.0), String::new()),
             ScenarioKind::ModelMeanJump { jump_size } | ScenarioKind::GivenJump { jump_size } => {
-                (String::new(), String::new(), fmt(jump_size))
+                (String::new(), String::new(), pct(jump_size))
             }
         };
+        if let ScenarioKind::User { index, .. } = f.scenario {
+            user = self.names.get(index).cloned().unwrap_or_default();
+        }
         self.w
             .write_record([
                 f.line.to_string().as_str(),
@@ -104,6 +148,7 @@ impl<W: Write> ScenarioFailureWriter<W> {
                 &vol,
                 &jump,
                 &f.reason,
+                &user,
             ])
             .map_err(csv_err)
     }
@@ -156,6 +201,13 @@ fn fmt(x: f64) -> String {
     }
 }
 
+/// A fraction written in percent (or vol points): 12 significant digits,
+/// so a shock of 0.07 reads `7.0`, not `7.000000000000001`.
+fn pct(x: f64) -> String {
+    let y = x * 100.0;
+    fmt(format!("{y:.11e}").parse().unwrap_or(y) + 0.0)
+}
+
 fn names_non_finite<'a>(values: &[(&'a str, f64)]) -> Vec<&'a str> {
     values
         .iter()
@@ -165,11 +217,12 @@ fn names_non_finite<'a>(values: &[(&'a str, f64)]) -> Vec<&'a str> {
 }
 
 /// Writes `totals.csv`, `scenarios.csv`, `jump_scenarios.csv`,
-/// `greeks_vs_spot.csv` and `report.html` into `dir`.
+/// `greeks_vs_spot.csv`, `scenarios_user.csv` (when the spec has named
+/// scenarios) and `report.html` into `dir`.
 ///
 /// # Errors
 /// Any I/O error.
-pub fn write_all(dir: &Path, r: &RiskReport, title: &str) -> std::io::Result<()> {
+pub fn write_all(dir: &Path, r: &RiskReport, meta: &ReportMeta) -> std::io::Result<()> {
     fs::create_dir_all(dir)?;
     let groups = r.groups();
     // totals.csv: delta and gamma in units of the underlying do not add up
@@ -203,8 +256,8 @@ pub fn write_all(dir: &Path, r: &RiskReport, title: &str) -> std::io::Result<()>
     let mut w = csv::Writer::from_path(dir.join("scenarios.csv")).map_err(csv_err)?;
     w.write_record([
         "underlying",
-        "spot_shock",
-        "vol_shock",
+        "spot_shock_pct",
+        "vol_shock_pts",
         "pnl",
         "level",
         "rows_failed",
@@ -212,8 +265,8 @@ pub fn write_all(dir: &Path, r: &RiskReport, title: &str) -> std::io::Result<()>
     ])
     .map_err(csv_err)?;
     for g in &groups {
-        for (i, ds) in r.spec.spot_shocks.iter().enumerate() {
-            for (j, dv) in r.spec.vol_shocks.iter().enumerate() {
+        for (i, ds) in r.spec.spot_shocks_pct.iter().enumerate() {
+            for (j, dv) in r.spec.vol_shocks_pts.iter().enumerate() {
                 let c = g.scenarios.grid[i][j];
                 w.write_record([
                     name_of(g).to_string(),
@@ -234,7 +287,7 @@ pub fn write_all(dir: &Path, r: &RiskReport, title: &str) -> std::io::Result<()>
     w.write_record([
         "underlying",
         "scenario",
-        "jump_size",
+        "jump_size_pct",
         "pnl",
         "level",
         "rows_failed",
@@ -243,19 +296,26 @@ pub fn write_all(dir: &Path, r: &RiskReport, title: &str) -> std::io::Result<()>
     .map_err(csv_err)?;
     for g in &groups {
         let s = g.scenarios;
-        let rows = std::iter::once(("model_mean_jump", s.mean_model_jump, s.jumps[0])).chain(
+        // The book's underlyings each jump by their own model mean jump:
+        // no one size to write.
+        let k = if g.underlying.is_some() {
+            Some(s.mean_model_jump * 100.0)
+        } else {
+            None
+        };
+        let rows = std::iter::once(("model_mean_jump", k, s.jumps[0])).chain(
             r.spec
-                .jump_shocks
+                .jump_shocks_pct
                 .iter()
                 .zip(&s.jumps[1..])
-                .map(|(size, c)| ("given_jump", *size, *c)),
+                .map(|(size, c)| ("given_jump", Some(*size), *c)),
         );
         for (scenario, size, c) in rows {
-            let bad = names_non_finite(&[("jump_size", size), ("pnl", c.pnl)]);
+            let bad = names_non_finite(&[("jump_size_pct", size.unwrap_or(0.0)), ("pnl", c.pnl)]);
             w.write_record([
                 name_of(g).to_string(),
                 scenario.to_string(),
-                fmt(size),
+                size.map(fmt).unwrap_or_default(),
                 fmt(c.pnl),
                 level_of(g).to_string(),
                 c.rows_failed.to_string(),
@@ -269,7 +329,7 @@ pub fn write_all(dir: &Path, r: &RiskReport, title: &str) -> std::io::Result<()>
     let mut w = csv::Writer::from_path(dir.join("greeks_vs_spot.csv")).map_err(csv_err)?;
     w.write_record([
         "underlying",
-        "spot_shock",
+        "spot_shock_pct",
         "delta_cash",
         "gamma_cash_1pct",
         "vega_1pt",
@@ -279,7 +339,7 @@ pub fn write_all(dir: &Path, r: &RiskReport, title: &str) -> std::io::Result<()>
     ])
     .map_err(csv_err)?;
     for g in &groups {
-        for (i, ds) in r.spec.spot_shocks.iter().enumerate() {
+        for (i, ds) in r.spec.spot_shocks_pct.iter().enumerate() {
             let p: CurvePoint = g.scenarios.greeks_vs_spot[i];
             let bad = names_non_finite(&[
                 ("delta_cash", p.delta_cash),
@@ -301,292 +361,172 @@ pub fn write_all(dir: &Path, r: &RiskReport, title: &str) -> std::io::Result<()>
     }
     w.flush()?;
 
-    fs::write(dir.join("report.html"), html(r, title))
-}
-
-/// Money amounts for the page; `error` for a value that is not finite.
-fn money(x: f64) -> String {
-    if !x.is_finite() {
-        return "error".to_string();
-    }
-    let a = x.abs();
-    let s = if a >= 1e15 {
-        format!("{x:.3e}")
-    } else if a >= 1e6 {
-        format!("{:.2}M", x / 1e6)
-    } else if a >= 1e4 {
-        format!("{:.1}k", x / 1e3)
-    } else {
-        format!("{x:.2}")
-    };
-    s.replace("-", "&minus;")
-}
-
-/// One line of a chart: its label, whether it is the book total (drawn
-/// black and thicker), and one value per spot shock.
-type Series = (String, bool, Vec<f64>);
-
-/// A line chart of several series against the spot shock (in percent).
-/// Values that are not finite are left out (the line breaks there).
-fn line_chart(title: &str, y_label: &str, xs: &[f64], series: &[Series]) -> String {
-    let mut svg = String::new();
-    {
-        let root = SVGBackend::with_string(&mut svg, (760, 380)).into_drawing_area();
-        let _ = root.fill(&WHITE);
-        let (mut lo, mut hi) = (f64::INFINITY, f64::NEG_INFINITY);
-        for (_, _, ys) in series {
-            for &y in ys.iter().filter(|y| y.is_finite()) {
-                lo = lo.min(y);
-                hi = hi.max(y);
-            }
-        }
-        if !(lo.is_finite() && hi.is_finite()) {
-            lo = -1.0;
-            hi = 1.0;
-        }
-        let pad = ((hi - lo).abs() * 0.08).max(1e-9 * (1.0 + hi.abs()));
-        let (x0, x1) = (xs[0] * 100.0, xs[xs.len() - 1] * 100.0);
-        let chart = ChartBuilder::on(&root)
-            .caption(title, ("sans-serif", 18))
-            .margin(12)
-            .x_label_area_size(40)
-            .y_label_area_size(80)
-            .build_cartesian_2d(x0..x1, (lo - pad)..(hi + pad));
-        if let Ok(mut chart) = chart {
-            let _ = chart
-                .configure_mesh()
-                .x_desc("spot shock (%)")
-                .y_desc(y_label)
-                .light_line_style(RGBColor(235, 235, 235))
-                .draw();
-            for (i, (name, book, ys)) in series.iter().enumerate() {
-                let book = *book;
-                let color = if book {
-                    BLACK
+    if !r.spec.user.is_empty() {
+        let mut w = csv::Writer::from_path(dir.join(USER_SCENARIOS_FILE)).map_err(csv_err)?;
+        w.write_record([
+            "scenario",
+            "underlying",
+            "pnl",
+            "level",
+            "rows_failed",
+            "status",
+        ])
+        .map_err(csv_err)?;
+        for (k, u) in r.spec.user.iter().enumerate() {
+            for g in &groups {
+                let c = g.scenarios.user[k];
+                let (pnl, st) = if u.is_valid() {
+                    (
+                        fmt(c.pnl),
+                        status(&names_non_finite(&[("pnl", c.pnl)]), c.rows_failed),
+                    )
                 } else {
-                    PALETTE[i % PALETTE.len()]
+                    (
+                        String::new(),
+                        format!("error: not computed: {}", u.problems.join("; ")),
+                    )
                 };
-                let style = ShapeStyle {
-                    color: color.to_rgba(),
-                    filled: false,
-                    stroke_width: if book { 3 } else { 2 },
-                };
-                // Runs of finite points, each drawn as its own line.
-                let mut runs: Vec<Vec<(f64, f64)>> = vec![Vec::new()];
-                for (x, y) in xs.iter().zip(ys) {
-                    if y.is_finite() {
-                        if let Some(r) = runs.last_mut() {
-                            r.push((x * 100.0, *y));
-                        }
-                    } else if runs.last().is_some_and(|r| !r.is_empty()) {
-                        runs.push(Vec::new());
-                    }
-                }
-                for (k, pts) in runs.into_iter().filter(|r| !r.is_empty()).enumerate() {
-                    if let Ok(s) = chart.draw_series(LineSeries::new(pts, style)) {
-                        if k == 0 {
-                            s.label(name.clone()).legend(move |(x, y)| {
-                                PathElement::new(vec![(x, y), (x + 18, y)], style)
-                            });
-                        }
-                    }
-                }
+                w.write_record([
+                    u.name.clone(),
+                    name_of(g).to_string(),
+                    pnl,
+                    level_of(g).to_string(),
+                    c.rows_failed.to_string(),
+                    st,
+                ])
+                .map_err(csv_err)?;
             }
-            let _ = chart
-                .configure_series_labels()
-                .background_style(WHITE.mix(0.85))
-                .border_style(RGBColor(200, 200, 200))
-                .position(SeriesLabelPosition::UpperRight)
-                .draw();
         }
-        let _ = root.present();
+        w.flush()?;
     }
-    svg
+
+    fs::write(dir.join("report.html"), html(r, meta))
 }
 
-/// Diverging colour: red for losses, green for gains, white at zero.
-fn heat(x: f64, scale: f64) -> RGBColor {
-    let t = if scale > 0.0 {
-        (x / scale).clamp(-1.0, 1.0)
-    } else {
-        0.0
-    };
-    let f = |a: f64| (255.0 - a * 255.0 * t.abs()).round() as u8;
-    if t < 0.0 {
-        RGBColor(255, f(0.75), f(0.8))
-    } else {
-        RGBColor(f(0.8), 255, f(0.75))
-    }
+/// An amount on the page (see [`compact`]); `&ndash;` where it does not apply.
+fn amount(x: f64) -> String {
+    compact(x)
 }
 
-/// The scenario grid as a heat map with the P&L written in each cell; a
-/// cell that excludes rows is marked `*`, one that is not finite is grey.
-fn heat_map(title: &str, spots: &[f64], vols: &[f64], grid: &[Vec<Cell>]) -> String {
-    let mut svg = String::new();
-    {
-        let root = SVGBackend::with_string(&mut svg, (760, 420)).into_drawing_area();
-        let _ = root.fill(&WHITE);
-        let scale = grid
-            .iter()
-            .flatten()
-            .filter(|c| c.pnl.is_finite())
-            .fold(0.0f64, |a, c| a.max(c.pnl.abs()));
-        let (ns, nv) = (spots.len(), vols.len());
-        let chart = ChartBuilder::on(&root)
-            .caption(title, ("sans-serif", 18))
-            .margin(12)
-            .x_label_area_size(40)
-            .y_label_area_size(70)
-            .build_cartesian_2d(-0.5..ns as f64 - 0.5, -0.5..nv as f64 - 0.5);
-        if let Ok(mut chart) = chart {
-            let sp: Vec<String> = spots
-                .iter()
-                .map(|s| format!("{:+.0}%", s * 100.0))
-                .collect();
-            let vp: Vec<String> = vols.iter().map(|v| format!("{:+.1}", v * 100.0)).collect();
-            // Cells are centred on integer coordinates; label those only.
-            let label = |x: f64, names: &[String]| {
-                let i = x.round();
-                if (x - i).abs() < 1e-6 && i >= 0.0 && (i as usize) < names.len() {
-                    names[i as usize].clone()
-                } else {
-                    String::new()
-                }
-            };
-            let _ = chart
-                .configure_mesh()
-                .disable_mesh()
-                .x_labels(ns)
-                .y_labels(nv)
-                .x_label_formatter(&|x| label(*x, &sp))
-                .y_label_formatter(&|y| label(*y, &vp))
-                .x_desc("spot shock")
-                .y_desc("vol shock (points)")
-                .draw();
-            let cells = (0..ns).flat_map(|i| (0..nv).map(move |j| (i, j)));
-            let _ = chart.draw_series(cells.clone().map(|(i, j)| {
-                Rectangle::new(
-                    [
-                        (i as f64 - 0.5, j as f64 - 0.5),
-                        (i as f64 + 0.5, j as f64 + 0.5),
-                    ],
-                    if grid[i][j].pnl.is_finite() {
-                        heat(grid[i][j].pnl, scale).filled()
-                    } else {
-                        RGBColor(200, 200, 200).filled()
-                    },
-                )
-            }));
-            let _ = chart.draw_series(cells.map(|(i, j)| {
-                let c = grid[i][j];
-                let mark = if c.rows_failed > 0 { "*" } else { "" };
-                Text::new(
-                    format!("{}{mark}", money(c.pnl).replace("&minus;", "-")),
-                    (i as f64 - 0.42, j as f64 + 0.12),
-                    ("sans-serif", 10),
-                )
-            }));
-        }
-        let _ = root.present();
-    }
-    svg
-}
-
-fn exposure_table(r: &RiskReport) -> String {
-    let mut t = String::from(
-        "<table><thead><tr><th>underlying</th><th>positions</th><th>value</th><th>delta</th>\
-         <th>cash delta</th><th>gamma</th><th>cash gamma (1%)</th><th>vega (1 pt)</th>\
-         <th>theta (1 day)</th><th>rho (1%)</th><th>div rho (1%)</th><th>dV/d&lambda;</th>\
-         <th>dV/d&mu;<sub>J</sub> (0.01)</th><th>dV/d&delta; (0.01)</th></tr></thead><tbody>",
-    );
-    for g in r.groups() {
-        let book = g.underlying.is_none();
-        let e = g.exposure;
-        let unit = |x: f64, digits: usize| {
-            if book {
-                "&ndash;".to_string()
-            } else if x.is_finite() {
-                format!("{x:.digits$}")
-            } else {
-                "error".to_string()
-            }
-        };
-        let _ = write!(
-            t,
-            "<tr{}><td>{}</td><td>{}</td><td>{}</td><td>{}</td><td>{}</td><td>{}</td><td>{}</td>\
-             <td>{}</td><td>{}</td><td>{}</td><td>{}</td><td>{}</td><td>{}</td><td>{}</td></tr>",
-            if book { " class=\"book\"" } else { "" },
-            esc(&display_name(&g)),
-            e.positions,
-            money(e.value),
-            unit(e.delta, 4),
-            money(e.delta_cash),
-            unit(e.gamma, 6),
-            money(e.gamma_cash_1pct),
-            money(e.vega_1pt),
-            money(e.theta_1d),
-            money(e.rho_1pct),
-            money(e.div_rho_1pct),
-            money(e.d_jump_rate),
-            money(e.d_jump_mean_1pct),
-            money(e.d_jump_vol_1pct),
-        );
-    }
-    t.push_str("</tbody></table>");
-    t
-}
-
+/// A P&L cell, with the rows it excludes.
 fn cell_html(c: &Cell) -> String {
     if c.rows_failed > 0 {
         format!(
             "{} <span class=\"warn\">(excl. {} row{})</span>",
-            money(c.pnl),
-            c.rows_failed,
+            amount(c.pnl),
+            grouped(c.rows_failed),
             if c.rows_failed == 1 { "" } else { "s" }
         )
     } else {
-        money(c.pnl)
+        amount(c.pnl)
     }
 }
 
+/// A fraction as a signed percentage (`+5%`, `−20%`).
+fn pct_label(x: f64) -> String {
+    format!("{}%", signed_short(x * 100.0))
+}
+
+/// `n thing(s)` with the right plural and thousands separators.
+fn count(n: u64, thing: &str) -> String {
+    format!("{} {thing}{}", grouped(n), if n == 1 { "" } else { "s" })
+}
+
+/// Units of the exposure columns, in [`crate::reports::risk::EXPOSURE_COLUMNS`] order.
+const EXPOSURE_HEADERS: [(&str, &str); 12] = [
+    ("value", "ccy"),
+    ("delta", "units of underlying"),
+    ("cash delta", "ccy (delta \u{00d7} spot)"),
+    ("gamma", "units per 1 ccy of spot"),
+    ("cash gamma", "ccy per 1% spot move"),
+    ("vega", "ccy per vol point"),
+    ("theta", "ccy per calendar day"),
+    ("rho", "ccy per 1% of rate"),
+    ("div rho", "ccy per 1% of yield"),
+    ("dV/d\u{03bb}", "ccy per jump a year"),
+    ("dV/d\u{03bc}J", "ccy per 0.01 of jump mean"),
+    ("dV/d\u{03b4}", "ccy per 0.01 of jump vol"),
+];
+
+fn exposure_table(r: &RiskReport) -> String {
+    let mut t = String::from("<table><thead><tr>");
+    t.push_str(&th("underlying", ""));
+    t.push_str(&th("positions", "count"));
+    for (name, unit) in EXPOSURE_HEADERS {
+        t.push_str(&th(name, unit));
+    }
+    t.push_str("</tr></thead><tbody>");
+    for g in r.groups() {
+        let book = g.underlying.is_none();
+        let _ = write!(
+            t,
+            "<tr{}><td>{}</td><td>{}</td>",
+            if book { " class=\"book\"" } else { "" },
+            esc(&display_name(&g)),
+            grouped(g.exposure.positions)
+        );
+        for ((name, _), x) in EXPOSURE_HEADERS.iter().zip(g.exposure.values()) {
+            let mixed_units = book && matches!(*name, "delta" | "gamma");
+            let shown = if mixed_units {
+                "&ndash;".to_string()
+            } else {
+                amount(x)
+            };
+            let _ = write!(t, "<td>{shown}</td>");
+        }
+        t.push_str("</tr>");
+    }
+    t.push_str("</tbody></table>");
+    scroll(&t)
+}
+
 fn jump_table(r: &RiskReport) -> String {
-    let mut t = String::from(
-        "<table><thead><tr><th>underlying</th><th>model mean jump</th><th>P&amp;L</th>",
-    );
+    let mut t = String::from("<table><thead><tr>");
+    t.push_str(&th("underlying", ""));
+    t.push_str(&th("model mean jump k", "% (|quantity|-weighted)"));
+    t.push_str(&th("P&L, jump by k", "ccy"));
     for j in &r.spec.jump_shocks {
-        let _ = write!(t, "<th>jump {:+.0}%</th>", j * 100.0);
+        t.push_str(&th(&format!("P&L, jump {}", pct_label(*j)), "ccy"));
     }
     t.push_str("</tr></thead><tbody>");
     for g in r.groups() {
         let s = g.scenarios;
-        let k = if s.mean_model_jump.is_finite() {
-            format!("{:+.2}%", s.mean_model_jump * 100.0)
-        } else {
-            "error".to_string()
+        let (name, k) = match g.underlying {
+            None => (
+                "book: every underlying by its own k".to_string(),
+                "each its own".to_string(),
+            ),
+            Some(_) => {
+                let (lo, hi) = s.model_jump_range;
+                let mut k = format!("{}%", compact(s.mean_model_jump * 100.0));
+                if lo < hi {
+                    let _ = write!(
+                        k,
+                        " (positions differ: {}% to {}%)",
+                        compact(lo * 100.0),
+                        compact(hi * 100.0)
+                    );
+                }
+                (display_name(&g), k)
+            }
         };
         let _ = write!(
             t,
-            "<tr{}><td>{}</td><td>{k}</td><td>{}</td>",
+            "<tr{}><td>{}</td><td>{k}</td>",
             if g.underlying.is_none() {
                 " class=\"book\""
             } else {
                 ""
             },
-            esc(&display_name(&g)),
-            cell_html(&s.jumps[0])
+            esc(&name),
         );
-        for c in &s.jumps[1..] {
+        for c in &s.jumps {
             let _ = write!(t, "<td>{}</td>", cell_html(c));
         }
         t.push_str("</tr>");
     }
     t.push_str("</tbody></table>");
-    t
-}
-
-/// `n thing(s)` with the right plural.
-fn count(n: u64, thing: &str) -> String {
-    format!("{n} {thing}{}", if n == 1 { "" } else { "s" })
+    scroll(&t)
 }
 
 /// A warning paragraph, a table of the first items listed (`cells` gives a
@@ -600,24 +540,26 @@ fn listed_table<T>(
     cells: impl Fn(&T) -> Vec<String>,
     more: impl Fn(u64) -> String,
 ) -> String {
-    let mut t = format!("{intro}<table><thead><tr>");
+    let mut t = String::from("<table><thead><tr>");
     for h in headers {
-        let _ = write!(t, "<th>{h}</th>");
+        let _ = write!(t, "<th class=\"text\">{h}</th>");
     }
     t.push_str("</tr></thead><tbody>");
     for item in items {
         t.push_str("<tr>");
         for c in cells(item) {
-            let _ = write!(t, "<td>{c}</td>");
+            let _ = write!(t, "<td class=\"text\">{c}</td>");
         }
         t.push_str("</tr>");
     }
     t.push_str("</tbody></table>");
+    let mut out = intro;
+    out.push_str(&scroll(&t));
     let left = total.saturating_sub(items.len() as u64);
     if left > 0 {
-        let _ = write!(t, "<p class=\"warn\">&hellip; and {}</p>", more(left));
+        let _ = write!(out, "<p class=\"warn\">&hellip; and {}</p>", more(left));
     }
-    t
+    out
 }
 
 fn failed_rows_html(r: &RiskReport) -> String {
@@ -631,17 +573,28 @@ fn failed_rows_html(r: &RiskReport) -> String {
     );
     listed_table(
         intro,
-        &["line", "id", "status"],
+        &["input line", "id", "status"],
         &r.first_failed_rows,
         r.failed_rows,
         |f| vec![f.line.to_string(), esc(&f.id), esc(&f.status)],
         |more| {
             format!(
-                "{more} more failed row{} (every row's status is in positions.csv).",
+                "{} more failed row{} (every row's status is in positions.csv).",
+                grouped(more),
                 if more == 1 { "" } else { "s" }
             )
         },
     )
+}
+
+fn scenario_name(r: &RiskReport, k: &ScenarioKind) -> String {
+    match k {
+        ScenarioKind::User { index, .. } => format!(
+            "scenario '{}'",
+            r.spec.user.get(*index).map_or("", |u| u.name.as_str())
+        ),
+        other => other.to_string(),
+    }
 }
 
 fn scenario_failures_html(r: &RiskReport) -> String {
@@ -656,7 +609,7 @@ fn scenario_failures_html(r: &RiskReport) -> String {
     );
     listed_table(
         intro,
-        &["line", "id", "underlying", "scenario", "reason"],
+        &["input line", "id", "underlying", "scenario", "reason"],
         &r.first_scenario_failures,
         r.scenario_failures,
         |f| {
@@ -664,13 +617,14 @@ fn scenario_failures_html(r: &RiskReport) -> String {
                 f.line.to_string(),
                 esc(&f.id),
                 esc(&f.underlying),
-                esc(&f.scenario.to_string()),
+                esc(&scenario_name(r, &f.scenario)),
                 esc(&f.reason),
             ]
         },
         |more| {
             format!(
-                "{more} more failed revaluation{} (see {SCENARIO_FAILURES_FILE}).",
+                "{} more failed revaluation{} (see {SCENARIO_FAILURES_FILE}).",
+                grouped(more),
                 if more == 1 { "" } else { "s" }
             )
         },
@@ -696,16 +650,178 @@ fn problems_html(r: &RiskReport) -> String {
         let _ = write!(
             t,
             "<p>&hellip; and {} more.</p>",
-            problems.len() - crate::reports::risk::MAX_LISTED
+            grouped((problems.len() - crate::reports::risk::MAX_LISTED) as u64)
         );
     }
     t
 }
 
+fn floored_html(r: &RiskReport) -> String {
+    if r.vol_floored == 0 {
+        return String::new();
+    }
+    let lowest = r.spec.vol_shocks_pts.first().copied().unwrap_or(0.0);
+    let intro = format!(
+        "<p class=\"warn\">{} a diffusion vol below the largest negative vol shock ({} points): in the \
+         grid cells of that shock (and any below the vol) the shocked vol is floored at 0.</p>",
+        if r.vol_floored == 1 {
+            "1 position has".to_string()
+        } else {
+            format!("{} positions have", grouped(r.vol_floored))
+        },
+        signed_short(lowest)
+    );
+    listed_table(
+        intro,
+        &["input line", "id", "underlying", "vol (%)"],
+        &r.first_floored,
+        r.vol_floored,
+        |f| {
+            vec![
+                f.line.to_string(),
+                esc(&f.id),
+                esc(&f.underlying),
+                compact(f.vol * 100.0),
+            ]
+        },
+        |more| format!("{} more positions.", grouped(more)),
+    )
+}
+
+fn user_scenarios_html(r: &RiskReport, meta: &ReportMeta) -> String {
+    let Some(file) = &meta.scenario_file else {
+        return String::new();
+    };
+    let groups = r.groups();
+    let mut s = format!(
+        "<h2>Named scenarios</h2><p class=\"note\">From {}: each scenario shocks each underlying by its \
+         own row, or by the <code>*</code> row, or not at all; every P&amp;L is a full revaluation (ccy). \
+         Also in {USER_SCENARIOS_FILE}.</p>",
+        esc(file)
+    );
+    if !meta.scenario_problems.is_empty() {
+        let _ = write!(
+            s,
+            "<p class=\"warn\">{} of the scenario file {} bad; a scenario with a bad row is not computed \
+             (its cells read &ndash;):</p><ul>",
+            count(meta.scenario_problems.len() as u64, "row"),
+            if meta.scenario_problems.len() == 1 {
+                "is"
+            } else {
+                "are"
+            }
+        );
+        for p in &meta.scenario_problems {
+            let _ = write!(s, "<li>{}</li>", esc(&p.message));
+        }
+        s.push_str("</ul>");
+    }
+    if !meta.scenario_unknown_underlyings.is_empty() {
+        let _ = write!(
+            s,
+            "<p class=\"warn\">The scenario file names underlyings that are not in the book (their rows move nothing): {}.</p>",
+            esc(&meta.scenario_unknown_underlyings.join(", "))
+        );
+    }
+    let mut t = String::from("<table><thead><tr>");
+    t.push_str(&th("scenario", ""));
+    t.push_str("<th class=\"text\">shocks</th>");
+    for g in &groups {
+        let (name, unit) = match g.underlying {
+            Some(_) => (display_name(g), "P&L, ccy".to_string()),
+            None => ("book".to_string(), "P&L, ccy".to_string()),
+        };
+        t.push_str(&th(&name, &unit));
+    }
+    t.push_str("<th class=\"text\">status</th></tr></thead><tbody>");
+    for (k, u) in r.spec.user.iter().enumerate() {
+        let _ = write!(
+            t,
+            "<tr><td>{}</td><td class=\"text\">{}</td>",
+            esc(&u.name),
+            esc(&describe(u))
+        );
+        for g in &groups {
+            let c = &g.scenarios.user[k];
+            let v = if u.is_valid() {
+                cell_html(c)
+            } else {
+                "&ndash;".to_string()
+            };
+            let _ = write!(
+                t,
+                "<td{}>{v}</td>",
+                if g.underlying.is_none() {
+                    " style=\"font-weight:bold\""
+                } else {
+                    ""
+                }
+            );
+        }
+        let st = if u.is_valid() {
+            "ok".to_string()
+        } else {
+            format!(
+                "<span class=\"warn\">not computed: {}</span>",
+                esc(&u.problems.join("; "))
+            )
+        };
+        let _ = write!(t, "<td class=\"text\">{st}</td></tr>");
+    }
+    t.push_str("</tbody></table>");
+    s.push_str(&scroll(&t));
+    s
+}
+
+/// What a named scenario does, row by row: `* spot −12%, vol +6 pts;
+/// ZEPHYRA-IDX spot −15%, vol +8 pts`.
+fn describe(u: &crate::reports::user_scenarios::UserScenario) -> String {
+    let one = |who: &str, r: &crate::reports::user_scenarios::ShockRow| {
+        let mut parts = Vec::new();
+        if r.spot_shock_pct != 0.0 {
+            parts.push(format!("spot {}%", signed_short(r.spot_shock_pct)));
+        }
+        if r.vol_shock_pts != 0.0 {
+            parts.push(format!("vol {} pts", signed_short(r.vol_shock_pts)));
+        }
+        let k = &r.shock;
+        if k.jump_rate_mult != 1.0 {
+            let m = signed_short(k.jump_rate_mult);
+            parts.push(format!("jump rate \u{00d7}{}", m.trim_start_matches('+')));
+        }
+        if k.jump_mean_shift != 0.0 {
+            parts.push(format!("jump mean {}", signed_short(k.jump_mean_shift)));
+        }
+        if k.jump_vol_shift != 0.0 {
+            parts.push(format!("jump vol {}", signed_short(k.jump_vol_shift)));
+        }
+        if k.rate_shift != 0.0 {
+            parts.push(format!("rate {} bp", signed_short(k.rate_shift * 1e4)));
+        }
+        if parts.is_empty() {
+            parts.push("no change".to_string());
+        }
+        format!("{who}: {}", parts.join(", "))
+    };
+    let mut rows: Vec<String> = Vec::new();
+    if let Some(r) = &u.all {
+        let who = if u.by_underlying.is_empty() {
+            "every underlying"
+        } else {
+            "every other underlying"
+        };
+        rows.push(one(who, r));
+    }
+    for (name, r) in &u.by_underlying {
+        rows.push(one(name, r));
+    }
+    rows.join("; ")
+}
+
 /// Underlyings with a heat map of their own (the book always has one).
 pub const MAX_HEAT_MAPS: usize = 20;
 /// Underlyings drawn in the line charts (one colour each; the book is extra).
-pub const MAX_LINES: usize = PALETTE.len();
+pub const MAX_LINES: usize = LINE_COLOURS.len();
 
 /// The groups to chart: the book and the `n` underlyings with the largest
 /// absolute grid P&L (ties in name order), shown in name order.
@@ -734,26 +850,128 @@ fn charted<'a>(groups: &[Group<'a>], n: usize) -> Vec<Group<'a>> {
         .collect()
 }
 
-fn html(r: &RiskReport, title: &str) -> String {
-    let xs = &r.spec.spot_shocks;
+/// A line chart against the spot shock, one line per charted group (the
+/// book thick and black).
+fn spot_chart(
+    title: &str,
+    y_desc: &str,
+    xs_pct: &[f64],
+    groups: &[Group],
+    value: &dyn Fn(&Group) -> Vec<f64>,
+) -> String {
+    let mut layers = Vec::new();
+    let mut colour = 0;
+    for g in groups {
+        let book = g.underlying.is_none();
+        let points = xs_pct.iter().copied().zip(value(g)).collect();
+        let label = if book {
+            "book".to_string()
+        } else {
+            display_name(g)
+        };
+        layers.push(Layer::line(&label, colour, book, points));
+        if !book {
+            colour += 1;
+        }
+    }
+    xy_chart(&XyChart {
+        title,
+        x_desc: "spot shock (%)",
+        y_desc,
+        size: (900, 380),
+        layers,
+        y_symmetric: false,
+    })
+}
+
+/// The book's headline figures: value, worst and best grid cell, worst jump.
+fn at_a_glance(r: &RiskReport) -> String {
+    let (e, s) = &r.book;
+    if e.positions == 0 {
+        return "<p class=\"warn\">No position of the book could be priced: every figure below is 0.</p>"
+            .to_string();
+    }
+    let mut worst: Option<(f64, usize, usize)> = None;
+    let mut best: Option<(f64, usize, usize)> = None;
+    for (i, row) in s.grid.iter().enumerate() {
+        for (j, c) in row.iter().enumerate() {
+            if !c.pnl.is_finite() {
+                continue;
+            }
+            if worst.is_none_or(|w| c.pnl < w.0) {
+                worst = Some((c.pnl, i, j));
+            }
+            if best.is_none_or(|b| c.pnl > b.0) {
+                best = Some((c.pnl, i, j));
+            }
+        }
+    }
+    let at = |x: Option<(f64, usize, usize)>| match x {
+        Some((v, i, j)) => format!(
+            "{} at spot {}%, vol {} points",
+            amount(v),
+            signed_short(r.spec.spot_shocks_pct[i]),
+            signed_short(r.spec.vol_shocks_pts[j])
+        ),
+        None => "&ndash;".to_string(),
+    };
+    let mut items = vec![
+        ("Book value", format!("{} ccy", amount(e.value))),
+        ("Cash delta", format!("{} ccy", amount(e.delta_cash))),
+        ("Vega", format!("{} ccy per vol point", amount(e.vega_1pt))),
+        ("Worst grid P&L", at(worst)),
+        ("Best grid P&L", at(best)),
+    ];
+    let mut jumps: Vec<(String, f64)> = vec![(
+        "every underlying by its own model mean jump".into(),
+        s.jumps[0].pnl,
+    )];
+    for (j, c) in r.spec.jump_shocks.iter().zip(&s.jumps[1..]) {
+        jumps.push((format!("every underlying jumps {}", pct_label(*j)), c.pnl));
+    }
+    if let Some((what, v)) = jumps
+        .into_iter()
+        .filter(|j| j.1.is_finite())
+        .min_by(|a, b| a.1.total_cmp(&b.1))
+    {
+        items.push(("Worst jump P&L", format!("{} ({what})", amount(v))));
+    }
+    facts(&items)
+}
+
+/// The list of shocks as given, `−30, −25, ... +30` with the unit.
+fn shock_list(xs: &[f64], unit: &str) -> String {
+    let v: Vec<String> = xs.iter().map(|x| signed_short(*x)).collect();
+    format!("{} {unit}", v.join(", "))
+}
+
+/// A Greek-against-spot chart: title, y-axis description, the value.
+type GreekChart = (&'static str, &'static str, fn(&CurvePoint) -> f64);
+
+/// The page.
+fn html(r: &RiskReport, meta: &ReportMeta) -> String {
+    let xs = &r.spec.spot_shocks_pct;
     let groups = r.groups();
     let n_underlyings = groups.len() - 1;
     let lines = charted(&groups, MAX_LINES);
     let zero_vol = r.spec.vol_shocks.iter().position(|v| *v == 0.0);
-    let series = |with_book: bool, value: &dyn Fn(&Group) -> Vec<f64>| -> Vec<Series> {
-        lines
-            .iter()
-            .filter(|g| with_book || g.underlying.is_some())
-            .map(|g| (display_name(g), g.underlying.is_none(), value(g)))
-            .collect()
+    let pnl_note = match zero_vol {
+        Some(_) => "vol unchanged",
+        None => "at the middle vol shock (no zero vol shock in the grid)",
     };
-    let pnl_series = series(true, &|g| {
-        g.scenarios
-            .grid
-            .iter()
-            .map(|row| row[zero_vol.unwrap_or(row.len() / 2)].pnl)
-            .collect()
-    });
+    let pnl_chart = spot_chart(
+        &format!("P&L against spot shock ({pnl_note})"),
+        "P&L (ccy)",
+        xs,
+        &lines,
+        &|g| {
+            g.scenarios
+                .grid
+                .iter()
+                .map(|row| row[zero_vol.unwrap_or(row.len() / 2)].pnl)
+                .collect()
+        },
+    );
     let curve = |f: fn(&CurvePoint) -> f64| {
         move |g: &Group| {
             g.scenarios
@@ -763,103 +981,189 @@ fn html(r: &RiskReport, title: &str) -> String {
                 .collect::<Vec<f64>>()
         }
     };
-    let delta_series = series(false, &curve(|p| p.delta_cash));
-    let gamma_series = series(false, &curve(|p| p.gamma_cash_1pct));
-    let vega_series = series(true, &curve(|p| p.vega_1pt));
+    let greek_charts: [GreekChart; 3] = [
+        ("Cash delta against spot shock", "cash delta (ccy)", |p| {
+            p.delta_cash
+        }),
+        (
+            "Cash gamma against spot shock",
+            "cash gamma (ccy per 1% move)",
+            |p| p.gamma_cash_1pct,
+        ),
+        ("Vega against spot shock", "vega (ccy per vol point)", |p| {
+            p.vega_1pt
+        }),
+    ];
+    let greek_charts: String = greek_charts
+        .iter()
+        .map(|(title, y, f)| {
+            format!(
+                "<figure>{}</figure>",
+                spot_chart(title, y, xs, &lines, &curve(*f))
+            )
+        })
+        .collect();
     let mut heat_maps = String::new();
     if n_underlyings > MAX_HEAT_MAPS || n_underlyings > MAX_LINES {
         let _ = write!(
             heat_maps,
             "<p class=\"note\">The book has {n_underlyings} underlyings: the line charts show the {} and the \
              heat maps the {} with the largest absolute P&amp;L on the grid, and the book; every underlying is in \
-             the tables above and in the CSV files.</p>",
+             the tables and in the CSV files.</p>",
             n_underlyings.min(MAX_LINES),
             n_underlyings.min(MAX_HEAT_MAPS)
         );
     }
-    for g in &charted(&groups, MAX_HEAT_MAPS) {
-        heat_maps.push_str("<figure>");
-        heat_maps.push_str(&heat_map(
-            &format!("P&L by full revaluation: {}", display_name(g)),
-            xs,
-            &r.spec.vol_shocks,
-            &g.scenarios.grid,
-        ));
-        heat_maps.push_str("</figure>");
+    let mapped = charted(&groups, MAX_HEAT_MAPS);
+    // One colour scale for every map of the page.
+    let scale = mapped
+        .iter()
+        .flat_map(|g| g.scenarios.grid.iter().flatten())
+        .filter(|c| c.pnl.is_finite())
+        .fold(0.0f64, |a, c| a.max(c.pnl.abs()));
+    let x_labels: Vec<String> = xs
+        .iter()
+        .map(|s| format!("{}%", signed_short(*s)))
+        .collect();
+    let y_labels: Vec<String> = r
+        .spec
+        .vol_shocks_pts
+        .iter()
+        .map(|v| signed_short(*v))
+        .collect();
+    let key = colour_key(scale, "P&L (ccy)", "one scale, every grid");
+    for g in &mapped {
+        let largest = g
+            .scenarios
+            .grid
+            .iter()
+            .flatten()
+            .filter(|c| c.pnl.is_finite())
+            .fold(0.0f64, |a, c| a.max(c.pnl.abs()));
+        let title = format!(
+            "P&L by full revaluation: {} (largest |P&L| {})",
+            match g.underlying {
+                Some(_) => display_name(g),
+                None => "book".to_string(),
+            },
+            compact(largest)
+        );
+        let map = heat_map(&HeatMap {
+            title: &title,
+            x_labels: &x_labels,
+            y_labels: &y_labels,
+            x_desc: "spot shock",
+            y_desc: "vol shock (points)",
+            values: g
+                .scenarios
+                .grid
+                .iter()
+                .map(|row| row.iter().map(|c| c.pnl).collect())
+                .collect(),
+            marked: g
+                .scenarios
+                .grid
+                .iter()
+                .map(|row| row.iter().map(|c| c.rows_failed > 0).collect())
+                .collect(),
+            scale,
+        });
+        let _ = write!(heat_maps, "<figure class=\"heat\">{map}{key}</figure>");
     }
-    let failed_html = failed_rows_html(r);
-    let scenario_failures_html = scenario_failures_html(r);
-    let problems = problems_html(r);
-    let floored = if r.vol_floored > 0 {
-        format!(
-            "<p>{} position(s) have a diffusion vol below the largest negative vol shock; in those scenarios their vol is floored at 0.</p>",
-            r.vol_floored
-        )
-    } else {
-        String::new()
+    let params = match &meta.params {
+        Some(p) => format!("vol and jump parameters from {}", esc(p)),
+        None => "from the book's columns".to_string(),
     };
-    format!(
-        r#"<!DOCTYPE html>
-<html lang="en"><head><meta charset="utf-8"><title>{title}</title>
-<style>
-body {{ font-family: sans-serif; margin: 24px auto; max-width: 1100px; color: #222; }}
-h1 {{ font-size: 22px; }} h2 {{ font-size: 18px; margin-top: 32px; border-bottom: 1px solid #ddd; }}
-table {{ border-collapse: collapse; font-size: 13px; margin: 8px 0; }}
-th, td {{ border: 1px solid #ddd; padding: 4px 8px; text-align: right; }}
-th {{ background: #f4f4f4; }} td:first-child, th:first-child {{ text-align: left; }}
-tr.book td {{ font-weight: bold; background: #fafafa; }}
-.warn {{ color: #a00; }} .note {{ color: #555; font-size: 13px; }}
-figure {{ margin: 12px 0; }}
-</style></head><body>
-<h1>{title}</h1>
-<p class="note">Merton jump-diffusion, closed-form series. Exposures are sums of quantity &times; multiplier &times; Greek, in desk units: cash delta = &delta;&middot;S, cash gamma = &Gamma;&middot;S&sup2;/100 (change of cash delta for a 1% move), vega per vol point, theta per calendar day, rho and dividend rho per percentage point, jump-mean and jump-vol sensitivities per 0.01. Scenario P&amp;L is full revaluation, not a Greek approximation.
-Model estimates: validate and use under your firm's model-risk policy.</p>
+    let mut settings = vec![
+        ("Report of", format!("<code>{}</code>", esc(&meta.input))),
+        (
+            "Rows",
+            format!(
+                "{} priced, {} failed{}",
+                grouped(r.book.0.positions),
+                grouped(r.failed_rows),
+                if r.failed_rows > 0 {
+                    " (excluded from everything, listed below)"
+                } else {
+                    ""
+                }
+            ),
+        ),
+        (
+            "Valuation date",
+            match &meta.valuation_date {
+                Some(d) => format!("{} (rows with their own valuation_date use it)", esc(d)),
+                None => {
+                    "not given: expiries in years (or dated rows with their own valuation_date)"
+                        .to_string()
+                }
+            },
+        ),
+        (
+            "Model",
+            format!("Merton jump-diffusion, closed-form series; {params}"),
+        ),
+        ("Spot shocks", shock_list(xs, "%")),
+        (
+            "Vol shocks",
+            shock_list(&r.spec.vol_shocks_pts, "vol points"),
+        ),
+        (
+            "Jump scenarios",
+            format!(
+                "each underlying by its own model mean jump; every underlying by {}",
+                shock_list(&r.spec.jump_shocks_pct, "%")
+            ),
+        ),
+    ];
+    if let Some(f) = &meta.scenario_file {
+        settings.push((
+            "Scenario file",
+            format!(
+                "<code>{}</code> ({})",
+                esc(f),
+                count(r.spec.user.len() as u64, "named scenario")
+            ),
+        ));
+    }
+    settings.push((
+        "Made",
+        format!("{}, saltus {}", made_at(), env!("CARGO_PKG_VERSION")),
+    ));
+    let body = format!(
+        r#"{header}
+<p class="note">Amounts are in <strong>ccy</strong>, the currency the book's prices are in, and scaled by quantity &times; multiplier. Numbers are rounded to three significant digits (k = thousand, M = million, bn = billion); the CSV files beside this page hold every digit. Scenario P&amp;L is a full revaluation, not a Greek approximation. Model estimates: validate and use under your firm's model-risk policy.</p>
+<h2>At a glance</h2>
+{glance}
 <h2>Rows</h2>
-{failed_html}
-{scenario_failures_html}
+{failed}
+{scenario_failures}
 {problems}
 <h2>Exposures by underlying</h2>
+<p class="note">Cash gamma is the change of cash delta for a 1% spot move. The book row leaves delta and gamma empty: they are in units of each underlying and do not add up.</p>
 {exposures}
 <h2>P&amp;L against spot</h2>
 <figure>{pnl_chart}</figure>
 <h2>Scenario grids (spot &times; vol)</h2>
+<p class="note">Every grid uses the same colours for the same P&amp;L (key beside each grid): red is a loss, blue a gain, near white about zero. A cell marked * excludes rows that could not be revalued (listed under Rows).</p>
 {floored}
 {heat_maps}
 <h2>Jump scenarios (instantaneous)</h2>
-<p class="note">The underlying jumps by the model's mean jump k = e<sup>&mu;<sub>J</sub>+&delta;&sup2;/2</sup> &minus; 1 of each position (the column shows the weighted mean over the group) or by the given size; all other inputs unchanged.</p>
+<p class="note">The underlying jumps by the model's mean jump k = e<sup>&mu;<sub>J</sub>+&delta;&sup2;/2</sup> &minus; 1 of each position, or by each given size (every underlying at once on the book row); all other inputs unchanged. P&amp;L in ccy.</p>
 {jumps}
+{user}
 <h2>Greeks against spot</h2>
-<figure>{delta_chart}</figure>
-<figure>{gamma_chart}</figure>
-<figure>{vega_chart}</figure>
-</body></html>
-"#,
-        title = esc(title),
+<p class="note">Vol unchanged; each curve is the sum over the underlying's positions at the shocked spot; the thick black line is the book.</p>
+{greek_charts}"#,
+        header = facts(&settings),
+        glance = at_a_glance(r),
+        failed = failed_rows_html(r),
+        scenario_failures = scenario_failures_html(r),
+        problems = problems_html(r),
         exposures = exposure_table(r),
-        pnl_chart = line_chart(
-            "P&L against spot shock (vol unchanged)",
-            "P&L",
-            xs,
-            &pnl_series
-        ),
+        floored = floored_html(r),
         jumps = jump_table(r),
-        delta_chart = line_chart(
-            "Cash delta against spot shock",
-            "cash delta",
-            xs,
-            &delta_series
-        ),
-        gamma_chart = line_chart(
-            "Cash gamma (1%) against spot shock",
-            "cash gamma",
-            xs,
-            &gamma_series
-        ),
-        vega_chart = line_chart(
-            "Vega (per vol point) against spot shock",
-            "vega",
-            xs,
-            &vega_series
-        ),
-    )
+        user = user_scenarios_html(r, meta),
+    );
+    page(&meta.title, &body)
 }
