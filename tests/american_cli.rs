@@ -489,7 +489,7 @@ fn issue12_risk_revalues_american_rows_with_the_pide() {
     let pnl = |shock: &str| {
         cells
             .iter()
-            .find(|r| r[col(&h, "level")] == "underlying" && r[col(&h, "spot_shock")] == shock)
+            .find(|r| r[col(&h, "level")] == "underlying" && r[col(&h, "spot_shock_pct")] == shock)
             .map(|r| r[col(&h, "pnl")].parse::<f64>().unwrap())
             .unwrap()
     };
@@ -514,9 +514,9 @@ fn issue12_risk_revalues_american_rows_with_the_pide() {
     .price;
     let want = 3.0 * (at(90.0) - base);
     assert!(
-        (pnl("-0.1") - want).abs() <= 1e-12 * want.abs(),
+        (pnl("-10.0") - want).abs() <= 1e-12 * want.abs(),
         "{} vs {want}",
-        pnl("-0.1")
+        pnl("-10.0")
     );
     let (ph, pos) = read_csv(std::fs::read(rep.join("positions.csv")).unwrap());
     assert_eq!(pos[0][col(&ph, "price")].parse::<f64>().unwrap(), base);
