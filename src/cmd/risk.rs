@@ -68,7 +68,7 @@ rate_shift_bp; an empty field is no change; rows with one scenario name make one
 underlying's own row wins over *. A bad row is reported with its line and column and its scenario \
 is not computed.\n\
 American rows (column exercise) are priced as by price (the PIDE, to --pide-tol) and revalued \
-by the PIDE in every scenario (about 130 PIDE prices per row with the default shocks: slow).\n\
+by the PIDE in every scenario (about 150 PIDE prices per row with the default shocks: slow).\n\
 Positions are quantity x multiplier (optional columns, default 1) and grouped by `underlying`.\n\
 level is `underlying` or `book`; the book row's underlying field reads (book), so use level to tell it \
 from an underlying of that name. Book-row delta and gamma are empty (units differ across underlyings).\n\
