@@ -63,13 +63,16 @@ fn writes_the_documented_columns_and_agrees() {
             "mc_paths",
             "mc_ess",
             "mc_hits",
+            "price_pide",
+            "pide_gap",
+            "pide_error_est",
             "verdict",
             "status"
         ]
     );
     for r in &rows {
-        assert_eq!(&r[22], "agree", "{r:?}");
-        assert_eq!(&r[23], "ok");
+        assert_eq!(&r[25], "agree", "{r:?}");
+        assert_eq!(&r[26], "ok");
         let z: f64 = r[14].parse().unwrap();
         assert!(z.abs() < 4.0);
         // fourier_gap_rel is fourier_gap / price_series (README "CSV books").
@@ -83,6 +86,11 @@ fn writes_the_documented_columns_and_agrees() {
             num(20) > 0.0 && num(20) <= paths as f64 * (1.0 + 1e-12),
             "{r:?}"
         );
+        // The European PIDE (issue 12): pide_gap = price_pide - price_series,
+        // within the PIDE's own estimate, which is within the crosscheck
+        // tolerance 1e-5 x spot.
+        assert_eq!(num(23), num(22) - num(10), "{r:?}");
+        assert!(num(23).abs() <= num(24) && num(24) <= 1e-3, "{r:?}");
     }
     assert!(err.contains("rows checked          4"), "{err}");
     assert!(err.contains("z-scores"), "{err}");
@@ -96,8 +104,8 @@ fn bad_rows_keep_the_status_contract() {
     );
     assert_eq!(code, Some(1));
     assert_eq!(rows.len(), 2);
-    assert_eq!(&rows[1][23], "error: line 3: strike is not a number: 'abc'");
-    assert!(rows[1][10].is_empty() && rows[1][22].is_empty());
+    assert_eq!(&rows[1][26], "error: line 3: strike is not a number: 'abc'");
+    assert!(rows[1][10].is_empty() && rows[1][25].is_empty());
 }
 
 #[test]

@@ -1206,6 +1206,10 @@ fn typical_book(rng: &mut Rng) -> Book {
                     "div_yield" => format!("{:.3}", rng.uniform(0.0, 0.05)),
                     "quantity" => format!("{}", rng.below(200) as i64 - 100),
                     "multiplier" => rng.pick(&["1", "10", "100"]).to_string(),
+                    // European only: American rows run the PIDE, whose
+                    // cost belongs to the American tests, not this budget;
+                    // the column still brings its two result columns.
+                    "exercise" => rng.pick(&["european", "", "European"]).to_string(),
                     _ => "free text".to_string(),
                 })
                 .collect()

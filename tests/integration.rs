@@ -1,6 +1,7 @@
 //! Integration tests, built as one binary. Each module checks one area
 //! against an outside reference named beside each check.
 
+mod american_cli;
 mod book_contract_cli;
 mod calibrate;
 mod calibrate_cli;

@@ -162,8 +162,8 @@ proptest! {
 // ---------------------------------------------------------------- numbers --
 
 /// A header with every column, in schema order (rate is field 4, quantity 12).
-const ALL: [&str; 15] = saltus::book::schema::COLUMNS;
-const VALID: [&str; 15] = [
+const ALL: [&str; 16] = saltus::book::schema::COLUMNS;
+const VALID: [&str; 16] = [
     "call",
     "100",
     "95",
@@ -179,6 +179,7 @@ const VALID: [&str; 15] = [
     "2",
     "10",
     "2026-12-01",
+    "american",
 ];
 
 fn schema_of(names: &[impl AsRef<[u8]>]) -> Schema {

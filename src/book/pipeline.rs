@@ -70,6 +70,12 @@ pub struct PipelineOptions {
     /// `expiry_years` column (the year fraction used) before the
     /// processor's columns; otherwise the output has only the processor's.
     pub inputs: BookInputs,
+    /// The result columns (ending with `status`) used instead of
+    /// `result_columns` when the book has an `exercise` column
+    /// ([`Schema::has_exercise`]); `None`: the same columns either way. The
+    /// header decides, since the book streams; the processor reads the
+    /// choice from [`BookRow::exercise_column`].
+    pub exercise_columns: Option<Vec<String>>,
 }
 
 /// One chunk of raw records with the line of each. `len` records are live;
@@ -166,11 +172,15 @@ where
     reader.read_record(&mut header_record)?;
     let headers: ByteRecord = header_record.iter().collect();
     let schema = Schema::with_inputs(&headers, &opts.inputs)?;
+    let result_columns = match &opts.exercise_columns {
+        Some(c) if schema.has_exercise() => c,
+        _ => &opts.result_columns,
+    };
     let columns: Vec<String> = schema
         .dated()
         .then(|| EXPIRY_YEARS.to_string())
         .into_iter()
-        .chain(opts.result_columns.iter().cloned())
+        .chain(result_columns.iter().cloned())
         .collect();
     let columns = &columns[..];
 

@@ -10,6 +10,7 @@
 use super::records::Record;
 use super::schema::Schema;
 use crate::engines::monte_carlo;
+use crate::engines::pide::Exercise;
 use crate::market::dates;
 use crate::model::{Contract, JumpParams, OptionKind, Short};
 use std::borrow::Cow;
@@ -35,6 +36,11 @@ pub struct BookRow<'a> {
     pub quantity: f64,
     /// Contract multiplier (default 1).
     pub multiplier: f64,
+    /// Exercise style (`exercise` column; European when absent or empty).
+    pub exercise: Exercise,
+    /// True when the book has an `exercise` column (the command then writes
+    /// its exercise result columns for every row).
+    pub exercise_column: bool,
 }
 
 /// Why a row could not be read. Displays as `line N: problem`.
@@ -139,6 +145,26 @@ fn general_kind(field: &[u8]) -> Result<OptionKind, String> {
             "kind '{}' is not call or put",
             shown(raw.as_bytes())
         )),
+    }
+}
+
+/// The `exercise` field: `european` (also empty) or `american`, any case.
+#[inline(always)]
+fn exercise(schema: &Schema, rec: &Record) -> Result<Exercise, String> {
+    let Some(i) = schema.exercise else {
+        return Ok(Exercise::European);
+    };
+    let raw = rec.get(i).unwrap_or(b"");
+    let t = text(raw).map_err(|e| format!("exercise {e}"))?;
+    if t.is_empty() || t.eq_ignore_ascii_case("european") {
+        Ok(Exercise::European)
+    } else if t.eq_ignore_ascii_case("american") {
+        Ok(Exercise::American)
+    } else {
+        Err(format!(
+            "exercise '{}' is not european or american",
+            shown(t.as_bytes())
+        ))
     }
 }
 
@@ -383,6 +409,7 @@ pub fn parse_row<'a>(
         b"put" => OptionKind::Put,
         other => general_kind(other).map_err(err)?,
     };
+    let exercise = exercise(schema, rec).map_err(err)?;
     let spot = number(rec, schema.spot, "spot").map_err(err)?;
     let strike = number(rec, schema.strike, "strike").map_err(err)?;
     let expiry = expiry(schema, rec).map_err(err)?;
@@ -423,6 +450,8 @@ pub fn parse_row<'a>(
         contract,
         quantity,
         multiplier,
+        exercise,
+        exercise_column: schema.exercise.is_some(),
     })
 }
 
@@ -671,6 +700,31 @@ mod tests {
         assert_eq!(k1, k2);
         assert_ne!(k1, crate::engines::monte_carlo::stream_key(7, ""));
         assert_ne!(k1, parse_row(&s, &e2, 1, 2).unwrap().stream_key(7));
+    }
+
+    #[test]
+    fn issue12_exercise_is_european_or_american_in_any_case() {
+        let mut cols: Vec<&str> = crate::book::schema::REQUIRED.to_vec();
+        cols.push("exercise");
+        let s = Schema::from_headers(&csv::ByteRecord::from(cols)).unwrap();
+        let ex = |e: &str| {
+            let r = rec(&["put", "100", "90", "1", "0", "0.2", "0", "0", "0", e]);
+            parse_row(&s, &r, 6, 7).map(|r| (r.exercise, r.exercise_column))
+        };
+        assert_eq!(ex("American"), Ok((Exercise::American, true)));
+        assert_eq!(ex(" AMERICAN "), Ok((Exercise::American, true)));
+        assert_eq!(ex("european"), Ok((Exercise::European, true)));
+        assert_eq!(ex(""), Ok((Exercise::European, true)));
+        assert_eq!(
+            ex("bermudan").unwrap_err().to_string(),
+            "line 7: exercise 'bermudan' is not european or american"
+        );
+        let r = rec(&["put", "100", "90", "1", "0", "0.2", "0", "0", "0"]);
+        let row = parse_row(&schema(), &r, 1, 2).unwrap();
+        assert_eq!(
+            (row.exercise, row.exercise_column),
+            (Exercise::European, false)
+        );
     }
 
     #[test]

@@ -41,15 +41,21 @@ pub const REQUIRED: [&str; 9] = [
 ];
 /// Columns a book may have, with their defaults: `id` (row number),
 /// `underlying` (empty), `div_yield` (0), `quantity` (1), `multiplier` (1),
-/// `valuation_date` (`--valuation-date`).
-pub const OPTIONAL: [&str; 6] = [
+/// `valuation_date` (`--valuation-date`), `exercise` (`european`).
+pub const OPTIONAL: [&str; 7] = [
     "id",
     "underlying",
     "div_yield",
     "quantity",
     "multiplier",
     "valuation_date",
+    EXERCISE,
 ];
+/// The optional exercise-style column (`european`, the default, or
+/// `american`). A book that has it gets the commands' exercise result
+/// columns ([`crate::book::PipelineOptions::exercise_columns`]), decided
+/// from the header alone since the book streams.
+pub const EXERCISE: &str = "exercise";
 /// Every known column: [`REQUIRED`] then [`OPTIONAL`], in that order (for
 /// tests and tools that build books).
 pub const COLUMNS: [&str; REQUIRED.len() + OPTIONAL.len()] = {
@@ -116,6 +122,7 @@ pub struct Schema {
     pub(crate) quantity: Option<usize>,
     pub(crate) multiplier: Option<usize>,
     pub(crate) valuation_date: Option<usize>,
+    pub(crate) exercise: Option<usize>,
     pub(crate) inputs: BookInputs,
 }
 
@@ -199,6 +206,7 @@ impl Schema {
             quantity: find("quantity")?,
             multiplier: find("multiplier")?,
             valuation_date: find("valuation_date")?,
+            exercise: find(EXERCISE)?,
             inputs: inputs.clone(),
         })
     }
@@ -208,6 +216,12 @@ impl Schema {
     /// the year fraction used in an `expiry_years` column.
     pub fn dated(&self) -> bool {
         self.inputs.valuation_date.is_some() || self.valuation_date.is_some()
+    }
+
+    /// True when the book has an `exercise` column: the commands then write
+    /// their exercise result columns for every row (European rows too).
+    pub fn has_exercise(&self) -> bool {
+        self.exercise.is_some()
     }
 }
 

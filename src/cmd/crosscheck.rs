@@ -8,7 +8,10 @@ use saltus::book::{run_book_with_state, PipelineOptions, StreamKeys};
 use saltus::engines::monte_carlo::{
     IntensityChoice, McConfig, Work, GAMMA_RANGE, MAX_JUMP_MEAN_SHIFT, MAX_PATHS,
 };
-use saltus::reports::crosscheck::{check, CheckConfig, Outcome, ABS_FLOOR};
+use saltus::engines::pide::Exercise;
+use saltus::reports::crosscheck::{
+    check, check_american, CheckConfig, Outcome, ABS_FLOOR, CROSSCHECK_PIDE_TOL,
+};
 use saltus::reports::crosscheck_report::{self, RunSettings, REPORT_FILE};
 use saltus::reports::crosscheck_summary::{CheckAccumulator, FlaggedRow};
 use std::path::PathBuf;
@@ -21,11 +24,19 @@ use std::time::Instant;
     columns_read!(),
     "Columns written: every input column echoed, then price_series, price_fourier, price_mc, \
 mc_stderr, mc_z, fourier_gap, fourier_gap_rel, fourier_error_est, mc_method, mc_paths, mc_ess, \
-mc_hits, verdict, status.\n\
+mc_hits, price_pide, pide_gap, pide_error_est, verdict, status.\n\
 fourier_gap_rel is fourier_gap / price_series (empty when the series price is 0); \
 fourier_error_est is the Fourier engine's own absolute error estimate; mc_method names the \
 Monte Carlo estimator (exact at T = 0, plain, jump-count); mc_paths the paths simulated; mc_ess \
 the effective sample size of the likelihood weights; mc_hits the paths that paid, before weighting.\n\
+price_pide is the European PIDE price (a fourth independent engine, to --pide-tol), pide_gap \
+price_pide - price_series, pide_error_est the PIDE's own error estimate; the PIDE agrees when \
+|pide_gap| <= pide_error_est. Rows outside its reach (lambda T above 50, a standard deviation \
+of ln S_T above 5, expiry below 1e-6 years, |ln(S/K)| beyond 12 x max(1, sd of ln S_T)) or needing more than 1e7 node-steps are inconclusive for it.\n\
+American rows (column exercise) are checked by PIDE grid convergence and the bounds of early \
+exercise (>= European series, >= intrinsic, = European for a call with q = 0 and r >= 0): \
+price_series is the European series price, price_pide the American PIDE price, pide_gap empty, \
+the Fourier and Monte Carlo columns empty, and the verdict names the checks.\n\
 verdict is 'agree', 'inconclusive: <why>' (an engine could not resolve the price, e.g. no \
 in-the-money Monte Carlo paths, or the Fourier engine failed or does not apply, as to a lattice \
 law with zero vol and zero jump vol: price_fourier and fourier_gap are then empty) or \
@@ -128,6 +139,11 @@ pub struct Args {
     /// Also write a self-contained HTML validation page, DIR/report.html.
     #[arg(long, value_name = "DIR")]
     pub report: Option<PathBuf>,
+    /// PIDE tolerance: absolute price error as a fraction of spot (1e-5 is
+    /// 0.001 at spot 100; ten times looser than price's default, so the
+    /// fourth engine costs about what the other three do)
+    #[arg(long, value_name = "F", default_value_t = CROSSCHECK_PIDE_TOL, allow_negative_numbers = true)]
+    pub pide_tol: f64,
     #[command(flatten)]
     pub inputs: super::book_inputs::BookInputArgs,
     /// No progress bar and no summary on stderr.
@@ -221,6 +237,7 @@ fn config(args: &Args) -> Result<CheckConfig> {
         mc,
         z_max: args.z_max,
         fourier_rel_tol: args.fourier_tol,
+        pide: super::pide_args::pide_config(args.pide_tol)?,
     })
 }
 
@@ -247,12 +264,16 @@ pub fn run(args: Args) -> Result<ExitCode> {
         "mc_paths",
         "mc_ess",
         "mc_hits",
+        "price_pide",
+        "pide_gap",
+        "pide_error_est",
         "verdict",
         "status",
     ];
     let opts = PipelineOptions {
         result_columns: columns.iter().map(|s| s.to_string()).collect(),
         inputs: args.inputs.inputs()?,
+        exercise_columns: None,
     };
     // The report directory is staged before any work, so a refused
     // directory stops the run before the book is read.
@@ -271,6 +292,26 @@ pub fn run(args: Args) -> Result<ExitCode> {
         &opts,
         |row, out, chunk: &mut CheckAccumulator| {
             let key = keys.key(row);
+            if row.exercise == Exercise::American {
+                let a = check_american(&row.contract, &cfg).map_err(|e| e.to_string())?;
+                out.push_f64(a.price_series);
+                out.push_empty(11); // Fourier and Monte Carlo: European engines
+                match a.pide {
+                    Some(p) => {
+                        out.push_f64(p.price);
+                        out.push_empty(1);
+                        out.push_f64(p.error_estimate);
+                    }
+                    None => out.push_empty(3),
+                }
+                out.push_str(&a.verdict);
+                bar.inc(1);
+                if out.non_finite().is_some() {
+                    return Ok(());
+                }
+                chunk.add_american(row.line, row.explicit_id().unwrap_or(""), &row.contract, &a);
+                return Ok(());
+            }
             let r = check(&row.contract, key, &cfg).map_err(|e| e.to_string())?;
             out.push_f64(r.price_series);
             match r.fourier {
@@ -299,6 +340,14 @@ pub fn run(args: Args) -> Result<ExitCode> {
             out.push_u64(r.mc.paths);
             out.push_f64(r.mc.ess);
             out.push_u64(r.mc.hits);
+            match r.pide {
+                Some(p) => {
+                    out.push_f64(p.price);
+                    out.push_f64(p.price - r.price_series);
+                    out.push_f64(p.error_estimate);
+                }
+                None => out.push_empty(3),
+            }
             out.push_str(&r.verdict);
             bar.inc(1);
             if out.non_finite().is_some() {
@@ -403,15 +452,16 @@ pub fn run(args: Args) -> Result<ExitCode> {
 }
 
 fn print_summary(s: &CheckAccumulator, cfg: &CheckConfig) {
-    eprintln!("Cross-check of the Merton series against Fourier (Lewis) and Monte Carlo");
+    eprintln!("Cross-check of the Merton series against Fourier (Lewis), Monte Carlo and the PIDE");
     eprintln!("  rows checked          {}", s.rows);
     eprintln!("  agree                 {}", s.agree);
     eprintln!("  inconclusive          {}", s.inconclusive);
     eprintln!("  disagree (flagged)    {}", s.disagree);
     eprintln!(
         "  tolerances            Monte Carlo |z| <= {} (standard errors); Fourier |gap| <= {:e} x price_series \
-         (relative), at least {:e} x spot (absolute, price units)",
-        cfg.z_max, cfg.fourier_rel_tol, ABS_FLOOR
+         (relative), at least {:e} x spot (absolute, price units); PIDE |gap| <= its own error estimate \
+         (PIDE tolerance {:e} x spot, price units)",
+        cfg.z_max, cfg.fourier_rel_tol, ABS_FLOOR, cfg.pide.tol_spot
     );
     eprintln!(
         "  Monte Carlo paths     {} in all, seed {}",

@@ -1,12 +1,18 @@
 //! `saltus greeks`: analytic Greeks, bump-and-reprice Greeks on any engine,
 //! or both side by side with their differences flagged (the validator's
 //! Greeks check).
+//!
+//! American rows (book column `exercise`) have no closed form: their
+//! reference Greeks are the PIDE grid's delta, gamma and theta, and their
+//! finite differences always reprice with the American PIDE, whatever
+//! `--engine` says.
 
 use super::output::Output;
 use super::{open_input, report_rows};
 use anyhow::{bail, Result};
 use saltus::book::{run_book, PipelineOptions, StreamKeys};
 use saltus::engines::monte_carlo::{McConfig, Work, MAX_PATHS};
+use saltus::engines::pide::{self, Exercise, PideEngine};
 use saltus::engines::series;
 use saltus::engines::{FourierEngine, MonteCarloEngine, PricingEngine, SeriesEngine};
 use saltus::greeks::finite_diff::{self, FdConfig};
@@ -25,6 +31,8 @@ pub enum EngineChoice {
     Fourier,
     /// Monte Carlo on common random numbers.
     Mc,
+    /// The PIDE (European exercise on European rows).
+    Pide,
 }
 
 /// Which Greeks to write.
@@ -50,6 +58,11 @@ Where a finite difference is not defined (an expired row at the strike, zero var
 forward at the strike, a point of a lattice law at the strike: the price has a kink within the \
 bumps) every G_flag is n/a, G_fd and the differences are empty, and fd_note says why; such a row \
 is not flagged.\n\
+American rows (column exercise): no closed form; the reference (`analytic`) values are the PIDE \
+grid's delta, gamma and theta (the other G_analytic, G_abs_diff, G_rel_diff, G_flag are empty), \
+and the finite differences reprice with the American PIDE (to --pide-tol) whatever --engine says. \
+With --method analytic such a row gets price, delta, gamma, theta, the other Greeks empty and a \
+warning status (not ok).\n\
 The Greeks, in raw units (per 1.00 of each input; theta = -dV/dT per year): delta gamma vega \
 theta rho div_rho d_jump_rate d_jump_mean d_jump_vol vanna volga.\n\
 With --engine mc each row's random stream is derived from --seed and the row's id (without an id: \
@@ -68,7 +81,8 @@ pub struct Args {
     #[arg(short, long, value_name = "OUT.csv")]
     pub output: Option<PathBuf>,
     /// Engine the finite differences reprice with: series (the closed form),
-    /// fourier (Lewis), mc (Monte Carlo on common random numbers).
+    /// fourier (Lewis), mc (Monte Carlo on common random numbers), pide (the
+    /// PIDE grid, to --pide-tol; American rows always use it).
     #[arg(
         long,
         value_enum,
@@ -80,17 +94,18 @@ pub struct Args {
     /// --engine), both (side by side, differences flagged).
     #[arg(long, value_enum, default_value = "both", hide_possible_values = true)]
     pub method: Method,
-    /// Relative tolerance for --method both [default: 1e-6 series, 1e-5 fourier, 0.05 mc]
+    /// Relative tolerance for --method both [default: 1e-6 series, 1e-5 fourier, 0.05 mc,
+    /// 1e-3 pide and American rows]
     #[arg(long, value_name = "R", allow_negative_numbers = true)]
     pub rel_tol: Option<f64>,
     /// Spot bump as a fraction of the one-sd move S min(1, s sqrt T)
-    /// [default: 1e-3 series, 3e-3 fourier, 0.2 mc]
+    /// [default: 1e-3 series, 3e-3 fourier, 0.2 mc, 1e-2 pide]
     #[arg(long, value_name = "H", allow_negative_numbers = true)]
     pub spot_bump: Option<f64>,
-    /// Absolute vol bump [default: 1e-3 series, 3e-3 fourier, 1e-2 mc]
+    /// Absolute vol bump [default: 1e-3 series, 3e-3 fourier, 1e-2 mc, 1e-2 pide]
     #[arg(long, value_name = "H", allow_negative_numbers = true)]
     pub vol_bump: Option<f64>,
-    /// Turn Richardson extrapolation off (it is used with series and fourier, never with mc).
+    /// Turn Richardson extrapolation off (it is used with series and fourier, never with mc or pide).
     #[arg(long)]
     pub no_richardson: bool,
     /// Monte Carlo paths per repricing (--engine mc), rounded up to whole
@@ -112,6 +127,8 @@ pub struct Args {
     pub seed: u64,
     #[command(flatten)]
     pub inputs: super::book_inputs::BookInputArgs,
+    #[command(flatten)]
+    pub pide: super::pide_args::PideArgs,
     /// No progress bar and no summary on stderr.
     #[arg(short, long)]
     pub quiet: bool,
@@ -127,6 +144,16 @@ fn floor(name: &str, s: f64) -> f64 {
     }
 }
 
+/// Default relative tolerance of the comparison when the finite
+/// differences reprice with the PIDE (its error, 1e-6 of spot by default,
+/// divided by bumps of 1e-2 to 1e-3, is of this order; the propagated noise
+/// is added on top).
+const PIDE_REL_TOL: f64 = 1e-3;
+
+/// Greeks the PIDE grid gives for an American row (the reference of the
+/// comparison), by index in `SENSITIVITY_NAMES`: delta, gamma, theta.
+const GRID_GREEKS: [usize; 3] = [0, 1, 3];
+
 /// Runs the command.
 pub fn run(args: Args) -> Result<ExitCode> {
     let start = Instant::now();
@@ -134,7 +161,10 @@ pub fn run(args: Args) -> Result<ExitCode> {
         EngineChoice::Series => 1e-6,
         EngineChoice::Fourier => 1e-5,
         EngineChoice::Mc => 0.05,
+        EngineChoice::Pide => PIDE_REL_TOL,
     });
+    let american_rel_tol = args.rel_tol.unwrap_or(PIDE_REL_TOL);
+    let pide_cfg = args.pide.config()?;
     // Every option is validated here, before any work.
     if !(rel_tol > 0.0 && rel_tol <= 1.0) {
         bail!("--rel-tol must be a positive number up to 1, got {rel_tol}");
@@ -180,6 +210,7 @@ pub fn run(args: Args) -> Result<ExitCode> {
     let opts = PipelineOptions {
         result_columns: columns,
         inputs: args.inputs.inputs()?,
+        exercise_columns: None,
     };
     let flagged_rows = AtomicU64::new(0);
     let mc_cfg = McConfig {
@@ -194,12 +225,17 @@ pub fn run(args: Args) -> Result<ExitCode> {
         config: mc_cfg.clone(),
         key: 0,
     };
+    let pide_probe = PideEngine {
+        exercise: Exercise::European,
+        config: pide_cfg,
+    };
     let bar = super::progress_bar(&args.book, args.quiet);
     let input = open_input(&args.book)?;
     let mut output = Output::open(args.output.as_deref(), &args.book)?;
     let keys = StreamKeys::new(args.seed);
     let summary = run_book(input, &mut output, &opts, |row, out| {
         let c = &row.contract;
+        let american = row.exercise == Exercise::American;
         let fd_config = |engine: &dyn PricingEngine| {
             let mut cfg = FdConfig::for_engine(engine);
             if let Some(h) = args.spot_bump {
@@ -215,9 +251,24 @@ pub fn run(args: Args) -> Result<ExitCode> {
         };
         let fd = |_: ()| -> Result<finite_diff::FdGreeks, String> {
             let mc;
+            let pide_engine;
             let engine: &dyn PricingEngine = match args.engine {
+                _ if american => {
+                    pide_engine = PideEngine {
+                        exercise: Exercise::American,
+                        config: pide_cfg,
+                    };
+                    &pide_engine
+                }
                 EngineChoice::Series => &SeriesEngine,
                 EngineChoice::Fourier => &FourierEngine,
+                EngineChoice::Pide => {
+                    pide_engine = PideEngine {
+                        exercise: Exercise::European,
+                        config: pide_cfg,
+                    };
+                    &pide_engine
+                }
                 EngineChoice::Mc => {
                     mc = finite_diff::crn_monte_carlo(c, keys.key(row), &mc_cfg);
                     &mc
@@ -225,6 +276,17 @@ pub fn run(args: Args) -> Result<ExitCode> {
             };
             finite_diff::greeks(engine, c, &fd_config(engine))
         };
+        if american {
+            return american_row(
+                out,
+                c,
+                &pide_cfg,
+                args.method,
+                american_rel_tol,
+                || fd(()),
+                &flagged_rows,
+            );
+        }
         match args.method {
             Method::Analytic => {
                 let g = series::price(c).map_err(|e| e.to_string())?.greeks;
@@ -247,6 +309,7 @@ pub fn run(args: Args) -> Result<ExitCode> {
                     EngineChoice::Series => &SeriesEngine,
                     EngineChoice::Fourier => &FourierEngine,
                     EngineChoice::Mc => &mc_probe,
+                    EngineChoice::Pide => &pide_probe,
                 };
                 if let Some(reason) = finite_diff::undefined_reason(c, &fd_config(probe)) {
                     for ga in a.sensitivities() {
@@ -309,11 +372,12 @@ pub fn run(args: Args) -> Result<ExitCode> {
         }
         if args.method == Method::Both {
             eprintln!(
-                "saltus: {flagged} rows with Greeks flagged (finite differences on the {} engine vs analytic, rel tol {rel_tol:e})",
+                "saltus: {flagged} rows with Greeks flagged (finite differences on the {} engine vs analytic, rel tol {rel_tol:e}; American rows: the PIDE vs its grid)",
                 match args.engine {
                     EngineChoice::Series => "series",
                     EngineChoice::Fourier => "fourier",
                     EngineChoice::Mc => "mc",
+                    EngineChoice::Pide => "pide",
                 }
             );
         }
@@ -323,4 +387,93 @@ pub fn run(args: Args) -> Result<ExitCode> {
     } else {
         ExitCode::SUCCESS
     })
+}
+
+/// The columns of an American row: the PIDE grid's price, delta, gamma and
+/// theta as the reference, finite differences of American PIDE prices.
+fn american_row(
+    out: &mut saltus::book::writer::RowWriter,
+    c: &saltus::model::Contract,
+    cfg: &pide::PideConfig,
+    method: Method,
+    rel_tol: f64,
+    fd: impl Fn() -> Result<finite_diff::FdGreeks, String>,
+    flagged_rows: &AtomicU64,
+) -> Result<(), String> {
+    if let Some(why) = saltus::greeks::american::pide_reach(c) {
+        return Err(format!("American exercise: {why}"));
+    }
+    let grid = pide::price(c, Exercise::American, cfg).map_err(|e| format!("PIDE engine: {e}"))?;
+    let reference = |i: usize| match i {
+        0 => Some((grid.delta, grid.greek_errors[0])),
+        1 => Some((grid.gamma, grid.greek_errors[1])),
+        3 => Some((grid.theta, grid.greek_errors[2])),
+        _ => None,
+    };
+    match method {
+        Method::Analytic => {
+            out.push_f64(grid.price);
+            for i in 0..SENSITIVITY_NAMES.len() {
+                match reference(i) {
+                    Some((v, _)) => out.push_f64(v),
+                    None => out.push_empty(1),
+                }
+            }
+            out.set_warning(
+                "American exercise has no closed form: delta, gamma and theta come from the \
+                 PIDE grid; the other Greeks need --method fd or both"
+                    .into(),
+            );
+        }
+        Method::Fd => {
+            let g = fd()?.greeks;
+            out.push_f64(g.price);
+            for v in g.sensitivities() {
+                out.push_f64(v);
+            }
+        }
+        Method::Both => {
+            let f = fd()?;
+            let mut flagged = Vec::new();
+            for (i, (gf, noise)) in f
+                .greeks
+                .sensitivities()
+                .into_iter()
+                .zip(f.noise.sensitivities())
+                .enumerate()
+            {
+                let Some((ga, grid_err)) = reference(i) else {
+                    out.push_empty(1);
+                    out.push_f64(gf);
+                    out.push_empty(3);
+                    continue;
+                };
+                debug_assert!(GRID_GREEKS.contains(&i));
+                let diff = gf - ga;
+                let tol =
+                    rel_tol * ga.abs() + floor(SENSITIVITY_NAMES[i], c.spot) + noise + grid_err;
+                let bad = diff.is_nan() || diff.abs() > tol;
+                out.push_f64(ga);
+                out.push_f64(gf);
+                out.push_f64(diff.abs());
+                let rel = diff.abs() / ga.abs();
+                if ga != 0.0 && rel.is_finite() {
+                    out.push_f64(rel);
+                } else {
+                    out.push_empty(1);
+                }
+                out.push_str(if bad { "DIFF" } else { "ok" });
+                if bad {
+                    flagged.push(SENSITIVITY_NAMES[i]);
+                }
+            }
+            out.push_f64(grid.price);
+            out.push_str(&flagged.join(" "));
+            out.push_empty(1); // fd_note: the grid's Greeks are defined here
+            if !flagged.is_empty() && out.non_finite().is_none() {
+                flagged_rows.fetch_add(1, Ordering::Relaxed);
+            }
+        }
+    }
+    Ok(())
 }

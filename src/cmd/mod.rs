@@ -11,7 +11,8 @@ macro_rules! columns_read {
         "Columns read (by header name, any order, case-insensitive):\n  \
 required: kind, spot, strike, expiry, rate, vol, jump_rate, jump_mean, jump_vol\n  \
 optional: id, underlying, div_yield (0), quantity (1), multiplier (1, risk and explain),\n  \
-valuation_date (YYYY-MM-DD; empty: --valuation-date)\n\
+valuation_date (YYYY-MM-DD; empty: --valuation-date), exercise (european, or american:\n  \
+priced by the PIDE engine to --pide-tol)\n\
 expiry is a year fraction, or a date YYYY-MM-DD when a valuation date is known (the row's\n\
 valuation_date, else --valuation-date): T = calendar days / 365 (ACT/365 fixed), written\n\
 in an expiry_years column before the results whenever a valuation date can apply.\n\
@@ -34,6 +35,7 @@ pub mod crosscheck;
 pub mod explain;
 pub mod greeks;
 pub mod output;
+pub mod pide_args;
 pub mod price;
 pub mod risk;
 

@@ -10,6 +10,7 @@ use super::output::OutputDir;
 use super::{open_input, report_rows};
 use anyhow::{anyhow, bail, Context, Result};
 use saltus::book::{run_book_with_state, PipelineOptions};
+use saltus::engines::pide::Exercise;
 use saltus::engines::series;
 use saltus::greeks::DESK_COLUMNS;
 use saltus::reports::risk::{self, PositionRef, RiskAccumulator, ScenarioSpec};
@@ -66,6 +67,8 @@ spot_shock_pct, vol_shock_pts, and optionally jump_rate_mult, jump_mean_shift, j
 rate_shift_bp; an empty field is no change; rows with one scenario name make one scenario, and an \
 underlying's own row wins over *. A bad row is reported with its line and column and its scenario \
 is not computed.\n\
+American rows (column exercise) are priced as by price (the PIDE, to --pide-tol) and revalued \
+by the PIDE in every scenario (about 150 PIDE prices per row with the default shocks: slow).\n\
 Positions are quantity x multiplier (optional columns, default 1) and grouped by `underlying`.\n\
 level is `underlying` or `book`; the book row's underlying field reads (book), so use level to tell it \
 from an underlying of that name. Book-row delta and gamma are empty (units differ across underlyings).\n\
@@ -120,6 +123,8 @@ pub struct Args {
     pub title: String,
     #[command(flatten)]
     pub inputs: super::book_inputs::BookInputArgs,
+    #[command(flatten)]
+    pub pide: super::pide_args::PideArgs,
     /// No summary on stderr.
     #[arg(short, long)]
     pub quiet: bool,
@@ -189,6 +194,7 @@ fn scenario_spec(args: &Args) -> Result<ScenarioSpec> {
 pub fn run(args: Args) -> Result<ExitCode> {
     let start = Instant::now();
     let mut spec = scenario_spec(&args)?;
+    let pide_cfg = args.pide.config()?;
     let scenario_file = match &args.scenarios {
         Some(p) => Some(ScenarioFile::read(p).map_err(|e| anyhow!("--scenarios: {e}"))?),
         None => None,
@@ -207,6 +213,7 @@ pub fn run(args: Args) -> Result<ExitCode> {
     let opts = PipelineOptions {
         result_columns: columns,
         inputs: args.inputs.inputs()?,
+        exercise_columns: None,
     };
     let input = open_input(&args.book)?;
     let out = BufWriter::new(
@@ -227,9 +234,15 @@ pub fn run(args: Args) -> Result<ExitCode> {
         out,
         &opts,
         |row, w, acc: &mut RiskAccumulator| {
-            let g = series::price(&row.contract)
-                .map_err(|e| e.to_string())?
-                .greeks;
+            let american = (row.exercise == Exercise::American).then_some(pide_cfg);
+            let g = match american {
+                Some(cfg) => saltus::greeks::american::price(&row.contract, &cfg)?.greeks,
+                None => {
+                    series::price(&row.contract)
+                        .map_err(|e| e.to_string())?
+                        .greeks
+                }
+            };
             // The line is the row's reference; the id only when the book has one.
             let p = PositionRef {
                 row: row.row,
@@ -239,6 +252,7 @@ pub fn run(args: Args) -> Result<ExitCode> {
                 contract: row.contract,
                 weight: row.quantity * row.multiplier,
                 greeks: g,
+                american,
             };
             // Every value written below is checked finite first, so the row
             // is either an error here or counted in full.

@@ -6,6 +6,7 @@
 //! renames those columns so the two can never be confused.
 //! Bump-and-reprice versions live in [`finite_diff`].
 
+pub mod american;
 pub mod finite_diff;
 
 /// Price and Greeks of one option. Raw partial derivatives, per unit.

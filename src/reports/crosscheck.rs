@@ -26,12 +26,28 @@
 //!   standard error (the control variate replicates every simulated payoff,
 //!   e.g. an option that was exercised on every path) agrees within the
 //!   absolute floor and is inconclusive otherwise.
+//! - The PIDE (European exercise, [`CheckConfig::pide`]) agrees when
+//!   `|price_pide - price_series| <= pide_error_est + ABS_FLOOR * spot`:
+//!   the gap is judged against the PIDE's own error estimate. A row outside
+//!   the PIDE's reach ([`pide_reach`](crate::greeks::american::pide_reach): huge `lambda T`, a huge spread of
+//!   `ln S_T`, an expiry or a moneyness the grid cannot resolve) or one where the engine does not
+//!   reach its tolerance within [`PIDE_MAX_WORK`] is inconclusive for the
+//!   PIDE, with the reason; the other engines still decide.
 //! - The row's verdict is `disagree: ...` if any check fails, `inconclusive: ...`
 //!   if none fails but one could not decide, otherwise `agree`.
+//!
+//! American rows ([`check_american`]) have no series, Fourier or Monte
+//! Carlo value to compare with; they are checked by the PIDE's grid
+//! convergence (its error estimate within the tolerance) and the bounds of
+//! early exercise: American >= European series, >= intrinsic value, and
+//! equal to the European value for a call with `q = 0` and `r >= 0`
+//! (Merton 1973), each within the PIDE's estimate.
 
 use crate::engines::fourier::{self, FourierResult};
 use crate::engines::monte_carlo::{self, McConfig, McEstimate};
+use crate::engines::pide::{self, Exercise, PideConfig};
 use crate::engines::series;
+use crate::greeks::american::pide_reach;
 use crate::model::Contract;
 
 /// Smallest number of in-the-money Monte Carlo paths for a verdict.
@@ -40,7 +56,15 @@ pub const MIN_MC_HITS: u64 = 100;
 pub const MIN_MC_ESS: f64 = 1000.0;
 /// Absolute floor of every comparison, as a fraction of spot (rounding level).
 pub const ABS_FLOOR: f64 = 1e-12;
-
+/// Default PIDE tolerance of a cross-check, as a fraction of spot: ten
+/// times the pricing default, so that the fourth engine costs about as
+/// much as the other three on an ordinary book (the gap is still judged
+/// against the engine's own estimate).
+pub const CROSSCHECK_PIDE_TOL: f64 = 1e-5;
+/// Work cap of the cross-check's PIDE (nodes x time steps of the finest
+/// level): about a second per row; a row that needs more is inconclusive
+/// for the PIDE rather than slow.
+pub const PIDE_MAX_WORK: f64 = 1e7;
 /// Cross-check settings.
 #[derive(Debug, Clone)]
 pub struct CheckConfig {
@@ -50,6 +74,8 @@ pub struct CheckConfig {
     pub z_max: f64,
     /// Largest accepted relative Fourier-minus-series gap.
     pub fourier_rel_tol: f64,
+    /// The PIDE engine's settings (tolerance as a fraction of spot).
+    pub pide: PideConfig,
 }
 
 impl Default for CheckConfig {
@@ -58,8 +84,39 @@ impl Default for CheckConfig {
             mc: McConfig::default(),
             z_max: 4.0,
             fourier_rel_tol: 1e-8,
+            pide: PideConfig {
+                tol_spot: CROSSCHECK_PIDE_TOL,
+            },
         }
     }
+}
+
+/// The PIDE's part of a cross-check.
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub struct PideCheck {
+    /// The PIDE price.
+    pub price: f64,
+    /// Its error estimate.
+    pub error_estimate: f64,
+}
+
+/// The PIDE price of `c` for a cross-check, or why there is none.
+///
+/// # Errors
+/// The reason, for an inconclusive verdict.
+pub fn pide_price(c: &Contract, exercise: Exercise, cfg: &PideConfig) -> Result<PideCheck, String> {
+    if let Some(why) = pide_reach(c) {
+        return Err(format!("pide not run: {why}"));
+    }
+    let r = pide::price_capped(c, exercise, cfg, PIDE_MAX_WORK)
+        .map_err(|e| format!("pide engine: {e}"))?;
+    if !(r.price.is_finite() && r.error_estimate.is_finite()) {
+        return Err("pide engine: the price is not a finite number".into());
+    }
+    Ok(PideCheck {
+        price: r.price,
+        error_estimate: r.error_estimate,
+    })
 }
 
 /// Outcome of one check.
@@ -86,6 +143,9 @@ pub struct RowCheck {
     pub mc_z: Option<f64>,
     /// `price_fourier - price_series` (`None` without a Fourier result).
     pub fourier_gap: Option<f64>,
+    /// The European PIDE price and estimate (`None`: not run or failed;
+    /// the verdict says why).
+    pub pide: Option<PideCheck>,
     /// Worst of the two outcomes.
     pub outcome: Outcome,
     /// `agree`, `inconclusive: ...` or `disagree: ...`.
@@ -134,6 +194,22 @@ pub fn check(c: &Contract, key: u64, cfg: &CheckConfig) -> Result<RowCheck, Chec
                 fails.push(format!("fourier gap {gap:.3e} beyond {tol:.1e}"));
             }
             Some(gap)
+        }
+    };
+    let pide = match pide_price(c, Exercise::European, &cfg.pide) {
+        Err(why) => {
+            unsure.push(why);
+            None
+        }
+        Ok(p) => {
+            let gap = p.price - s;
+            if gap.abs() > p.error_estimate + floor {
+                fails.push(format!(
+                    "pide gap {gap:.3e} beyond its error estimate {:.1e}",
+                    p.error_estimate
+                ));
+            }
+            Some(p)
         }
     };
     let diff = m.price - s;
@@ -203,6 +279,86 @@ pub fn check(c: &Contract, key: u64, cfg: &CheckConfig) -> Result<RowCheck, Chec
         mc: m,
         mc_z,
         fourier_gap: gap,
+        pide,
+        outcome,
+        verdict,
+    })
+}
+
+/// What the cross-check found for an American row.
+#[derive(Debug, Clone, PartialEq)]
+pub struct AmericanCheck {
+    /// The European series price (the lower bound).
+    pub price_series: f64,
+    /// The American PIDE price and estimate (`None`: not run or failed).
+    pub pide: Option<PideCheck>,
+    /// Outcome.
+    pub outcome: Outcome,
+    /// `agree: ...`, `inconclusive: ...` or `disagree: ...`, naming the checks.
+    pub verdict: String,
+}
+
+/// Checks an American row by the PIDE's grid convergence and the bounds
+/// of early exercise (module documentation).
+///
+/// # Errors
+/// [`CheckError`] when the series engine fails.
+pub fn check_american(c: &Contract, cfg: &CheckConfig) -> Result<AmericanCheck, CheckError> {
+    let s = series::price(c)?.greeks.price;
+    let tol = cfg.pide.tol_spot * c.spot;
+    let (pide, outcome, verdict) = match pide_price(c, Exercise::American, &cfg.pide) {
+        Err(why) => (
+            None,
+            Outcome::Inconclusive,
+            format!("inconclusive: American, {why}"),
+        ),
+        Ok(p) => {
+            let e = p.error_estimate + ABS_FLOOR * c.spot;
+            let intrinsic = c.kind.payoff(c.spot, c.strike);
+            let mut fails = Vec::new();
+            if p.price < s - e {
+                fails.push(format!(
+                    "American {:.6e} below the European series {s:.6e}",
+                    p.price
+                ));
+            }
+            if p.price < intrinsic - e {
+                fails.push(format!(
+                    "American {:.6e} below the intrinsic value {intrinsic:.6e}",
+                    p.price
+                ));
+            }
+            let worthless = pide::early_exercise_is_worthless(c);
+            if worthless && (p.price - s).abs() > e {
+                fails.push(format!(
+                    "American call {:.6e} differs from the European {s:.6e} with q = 0, r >= 0",
+                    p.price
+                ));
+            }
+            let checks = format!(
+                "American, by PIDE grid convergence (estimate {:.1e} <= tolerance {tol:.1e}) and \
+                 bounds (>= European series, >= intrinsic{})",
+                p.error_estimate,
+                if worthless {
+                    ", = European call as q = 0 and r >= 0"
+                } else {
+                    ""
+                }
+            );
+            if fails.is_empty() {
+                (Some(p), Outcome::Agree, format!("agree: {checks}"))
+            } else {
+                (
+                    Some(p),
+                    Outcome::Disagree,
+                    format!("disagree: {checks}: {}", fails.join("; ")),
+                )
+            }
+        }
+    };
+    Ok(AmericanCheck {
+        price_series: s,
+        pide,
         outcome,
         verdict,
     })

@@ -14,7 +14,7 @@
 //! of the z-scores (the normal quantile plot) come from a histogram of bin
 //! width [`Z_BIN`], not from the scores themselves.
 
-use super::crosscheck::{CheckConfig, Outcome, RowCheck, ABS_FLOOR};
+use super::crosscheck::{AmericanCheck, CheckConfig, Outcome, RowCheck, ABS_FLOOR};
 use crate::book::ChunkState;
 use crate::model::{Contract, OptionKind};
 
@@ -291,6 +291,36 @@ impl CheckAccumulator {
                     mc_method: method,
                     outcome: r.outcome,
                     verdict: r.verdict.clone(),
+                });
+            } else {
+                self.flagged_more += 1;
+            }
+        }
+    }
+
+    /// Adds one American row, checked by PIDE convergence and the bounds of
+    /// early exercise (no Fourier or Monte Carlo figures to bin).
+    pub fn add_american(&mut self, line: u64, id: &str, c: &Contract, a: &AmericanCheck) {
+        self.rows += 1;
+        match a.outcome {
+            Outcome::Agree => self.agree += 1,
+            Outcome::Inconclusive => self.inconclusive += 1,
+            Outcome::Disagree => self.disagree += 1,
+        }
+        if a.outcome != Outcome::Agree {
+            if self.flagged.len() < KEEP_FLAGGED {
+                self.flagged.push(FlaggedRow {
+                    line,
+                    id: id.to_string(),
+                    kind: c.kind,
+                    log_moneyness: log_moneyness(c),
+                    expiry: c.expiry,
+                    price_series: a.price_series,
+                    z: None,
+                    fourier_gap_rel: None,
+                    mc_method: "american (pide)",
+                    outcome: a.outcome,
+                    verdict: a.verdict.clone(),
                 });
             } else {
                 self.flagged_more += 1;

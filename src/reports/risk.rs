@@ -39,7 +39,9 @@
 
 use crate::book::pipeline::CHUNK_ROWS;
 use crate::book::{ChunkState, FailedRecord};
-use crate::engines::series;
+use crate::engines::pide::{self, Exercise, PideConfig, PideEngine};
+use crate::engines::{series, Priced};
+use crate::greeks::finite_diff::{self, FdConfig};
 use crate::greeks::{Greeks, DAYS_PER_YEAR, DESK_COLUMNS};
 use crate::model::{Contract, JumpParams};
 use crate::reports::user_scenarios::UserScenario;
@@ -95,6 +97,7 @@ impl Position {
             contract: self.contract,
             weight: self.weight(),
             greeks: self.greeks,
+            american: None,
         }
     }
 }
@@ -116,6 +119,9 @@ pub struct PositionRef<'a> {
     pub weight: f64,
     /// Analytic price and Greeks per unit.
     pub greeks: Greeks,
+    /// `Some(settings)`: American exercise, revalued in every scenario by
+    /// the PIDE with these settings; `None`: European, by the series.
+    pub american: Option<PideConfig>,
 }
 
 /// Aggregated exposure of a set of positions, in desk units.
@@ -790,17 +796,36 @@ struct RowScenarios {
     k: f64,
 }
 
-fn revalue(c: &Contract, spot_shock: f64, vol_shock: f64) -> Result<Greeks, String> {
-    revalue_shocked(c, &Shock::spot_vol(spot_shock, vol_shock))
+fn revalue(
+    c: &Contract,
+    american: Option<&PideConfig>,
+    spot_shock: f64,
+    vol_shock: f64,
+) -> Result<Greeks, String> {
+    revalue_as(c, american, &Shock::spot_vol(spot_shock, vol_shock))
 }
 
 /// Full revaluation of `c` under `shock` (see [`Shock`]): the one place
-/// where every scenario of the report is priced.
+/// where every scenario of the report is priced (European exercise; see
+/// [`revalue_as`] for American rows).
 ///
 /// # Errors
 /// A message when the shocked contract leaves the model's domain or the
 /// engine fails.
 pub fn revalue_shocked(c: &Contract, shock: &Shock) -> Result<Greeks, String> {
+    revalue_as(c, None, shock)
+}
+
+/// [`revalue_shocked`] for either exercise style: `american` = `Some(settings)`
+/// revalues by the American PIDE ([`revalue_american`]), `None` by the series.
+///
+/// # Errors
+/// As [`revalue_shocked`].
+pub fn revalue_as(
+    c: &Contract,
+    american: Option<&PideConfig>,
+    shock: &Shock,
+) -> Result<Greeks, String> {
     let shocked = Contract::new(
         c.kind,
         c.spot * (1.0 + shock.spot),
@@ -816,9 +841,50 @@ pub fn revalue_shocked(c: &Contract, shock: &Shock) -> Result<Greeks, String> {
         },
     )
     .map_err(|e| format!("shocked contract: {e}"))?;
-    series::price(&shocked)
-        .map(|r| r.greeks)
-        .map_err(|e| format!("series engine: {e}"))
+    match american {
+        Some(cfg) => revalue_american(&shocked, cfg, shock.vol == 0.0),
+        None => series::price(&shocked)
+            .map(|r| r.greeks)
+            .map_err(|e| format!("series engine: {e}")),
+    }
+}
+
+/// An American revaluation by the PIDE, as `price` values the row (at least
+/// the European series value): price, delta, gamma and theta from the grid; vega (central difference of PIDE prices) only when `vega` is
+/// asked for, since only the unshocked-vol cells feed the Greeks-against-
+/// spot curve; the other Greeks are not used by the scenarios (0).
+fn revalue_american(c: &Contract, cfg: &PideConfig, vega: bool) -> Result<Greeks, String> {
+    if let Some(why) = crate::greeks::american::pide_reach(c) {
+        return Err(format!("American exercise: {why}"));
+    }
+    let r = pide::price(c, Exercise::American, cfg).map_err(|e| format!("PIDE engine: {e}"))?;
+    let vega = if vega {
+        let engine = PideEngine {
+            exercise: Exercise::American,
+            config: *cfg,
+        };
+        let base = Priced {
+            price: r.price,
+            error: r.error_estimate,
+        };
+        let fd = FdConfig::for_engine(&engine);
+        finite_diff::first_derivatives(&engine, c, base, &fd, &[crate::model::Param::Vol])?[0].0
+    } else {
+        0.0
+    };
+    // As `price` writes it: never below the European value (a theorem).
+    let european = series::price(c)
+        .map_err(|e| format!("series engine (European value): {e}"))?
+        .greeks
+        .price;
+    Ok(Greeks {
+        price: r.price.max(european),
+        delta: r.delta,
+        gamma: r.gamma,
+        vega,
+        theta: r.theta,
+        ..Greeks::default()
+    })
 }
 
 /// Accumulated risk of part of a book (one chunk while streaming) or of the
@@ -882,7 +948,7 @@ impl RiskAccumulator {
         for &s in &spec.spot_shocks {
             let mut at_zero = None;
             for (j, &v) in spec.vol_shocks.iter().enumerate() {
-                let g = revalue(c, s, v);
+                let g = revalue(c, p.american.as_ref(), s, v);
                 if Some(j) == zero_vol {
                     at_zero = Some(g.clone());
                 }
@@ -900,7 +966,7 @@ impl RiskAccumulator {
                     }
                 }
             }
-            let g = at_zero.unwrap_or_else(|| revalue(c, s, 0.0));
+            let g = at_zero.unwrap_or_else(|| revalue(c, p.american.as_ref(), s, 0.0));
             let point = g.and_then(|g| {
                 let spot = c.spot * (1.0 + s);
                 let point = (
@@ -928,7 +994,7 @@ impl RiskAccumulator {
             .chain(spec.jump_shocks.iter().copied())
             .enumerate()
         {
-            match pnl(revalue(c, size, 0.0)) {
+            match pnl(revalue(c, p.american.as_ref(), size, 0.0)) {
                 Ok(x) => jumps.push(Some(x)),
                 Err(reason) => {
                     jumps.push(None);
@@ -949,7 +1015,7 @@ impl RiskAccumulator {
             match row {
                 // Not computed, or nothing moves for this underlying.
                 None => user.push(Some(0.0)),
-                Some(r) => match pnl(revalue_shocked(c, &r.shock)) {
+                Some(r) => match pnl(revalue_as(c, p.american.as_ref(), &r.shock)) {
                     Ok(x) => user.push(Some(x)),
                     Err(reason) => {
                         user.push(None);

@@ -97,6 +97,20 @@ pub fn read_book<R: Read>(
         let id = field(Some(id_col));
         let underlying = field(schema.underlying);
         let position = parse_row(&schema, &rec, row, line)
+            .and_then(|r| {
+                // The explain is built on the series' analytic Greeks: an
+                // American row is refused, never explained as European.
+                if r.exercise == crate::engines::pide::Exercise::American {
+                    Err(crate::book::RowError {
+                        line,
+                        message: "exercise american: the P&L explain covers European \
+                                  options only"
+                            .into(),
+                    })
+                } else {
+                    Ok(r)
+                }
+            })
             .map(|r| Position {
                 underlying: r.underlying.to_string(),
                 contract: r.contract,
