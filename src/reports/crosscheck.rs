@@ -12,29 +12,42 @@
 //!   check is inconclusive with the engine's reason, and the series and
 //!   Monte Carlo results are still reported.
 //! - Monte Carlo agrees when `|z| <= z_max`, `z = (price_mc - price_series) / mc_stderr`.
-//!   When the simulated discounted terminal price misses its known mean by
-//!   more than 5 standard errors (martingale test), the sample is not
-//!   representative (extremely heavy tails) and the check is inconclusive;
-//!   so it is when that z-score is not a finite number (every simulated
-//!   discounted terminal price alike but off its mean, or the simulated
-//!   prices overflow).
-//!   With fewer than [`MIN_MC_HITS`] in-the-money paths, or an effective
-//!   sample size of the weights below [`MIN_MC_ESS`], the standard error
-//!   itself is not trustworthy and the check is inconclusive. A degenerate
-//!   standard error (the control variate replicates every simulated payoff,
-//!   e.g. an option that was exercised on every path) agrees within the
-//!   absolute floor and is inconclusive otherwise.
+//!   The engine simulates the out-of-the-money side (deep in-the-money rows
+//!   by put-call parity) under the change of measure its pilot picked
+//!   (`mc_method`, docs/engines.md). Its standard error is trusted when:
+//!   - at least [`MIN_MC_HITS`] simulated paths paid, counted under the
+//!     sampling law (a tilt makes them plentiful), and the effective sample
+//!     size of the weighted payoffs `(sum w f)^2 / sum (w f)^2` is at least
+//!     [`MIN_MC_ESS`] (no handful of heavy paths carries the estimate);
+//!   - for an estimator whose weighted payoff is not bounded by construction
+//!     (an untilted call side, a jump-count factor below 1, a shifted jump
+//!     mean), the simulated discounted terminal price also meets its known
+//!     mean within 5 standard errors (martingale test): otherwise the sample
+//!     misses the paths that carry the forward (extremely heavy tails), and
+//!     so it is when that z-score is not a finite number (every simulated
+//!     discounted terminal price alike but off its mean, or the simulated
+//!     prices overflow). A bounded estimator needs no such test: its sample
+//!     variance is an honest error bar whatever the tails of `S_T`.
+//!
+//!   Otherwise the check is inconclusive with the reason. A degenerate
+//!   standard error (every sampled term alike: a law with one possible
+//!   outcome on the paying side, or a control that replicates every
+//!   simulated payoff) agrees within the absolute floor and is inconclusive
+//!   otherwise; `mc_method` `exact` (expiry 0, or a lattice law whose support
+//!   cannot reach the strike) is compared within the floor too.
 //! - The row's verdict is `disagree: ...` if any check fails, `inconclusive: ...`
 //!   if none fails but one could not decide, otherwise `agree`.
 
 use crate::engines::fourier::{self, FourierResult};
-use crate::engines::monte_carlo::{self, McConfig, McEstimate};
+use crate::engines::monte_carlo::{self, McConfig, McEstimate, McMethod};
 use crate::engines::series;
 use crate::model::Contract;
 
-/// Smallest number of in-the-money Monte Carlo paths for a verdict.
+/// Smallest number of paying Monte Carlo paths, counted under the sampling
+/// law before weighting, for a verdict (common practice: a sample standard
+/// error from fewer paying paths is itself too noisy to judge by).
 pub const MIN_MC_HITS: u64 = 100;
-/// Smallest effective sample size of the likelihood weights for a verdict.
+/// Smallest effective sample size of the weighted payoffs for a verdict.
 pub const MIN_MC_ESS: f64 = 1000.0;
 /// Absolute floor of every comparison, as a fraction of spot (rounding level).
 pub const ABS_FLOOR: f64 = 1e-12;
@@ -141,8 +154,14 @@ pub fn check(c: &Contract, key: u64, cfg: &CheckConfig) -> Result<RowCheck, Chec
     // A relative standard error below 1e-9 with a million paths would need a
     // variance reduction of 1e18: only a control that replicates every
     // simulated payoff does that.
-    let degenerate_se = m.std_error <= 1e-9 * s.max(floor);
-    if c.expiry > 0.0 && !m.martingale_z.is_finite() {
+    // (Only an exact zero, or a control that took out all the variance:
+    // a tilted estimate of a tiny out-of-the-money value plus a large
+    // forward intrinsic has a genuinely tiny standard error.)
+    let degenerate_se =
+        m.std_error == 0.0 || (m.beta != 0.0 && m.std_error <= 1e-9 * s.max(floor));
+    let needs_forward = c.expiry > 0.0 && !m.bounded && m.method != McMethod::Exact;
+    let simulated = c.expiry > 0.0 && m.method != McMethod::Exact;
+    if needs_forward && !m.martingale_z.is_finite() {
         // The z-score itself is undefined: say why instead of printing it.
         unsure.push(
             if m.martingale_z.is_nan() {
@@ -153,21 +172,30 @@ pub fn check(c: &Contract, key: u64, cfg: &CheckConfig) -> Result<RowCheck, Chec
             }
             .to_string(),
         );
-    } else if c.expiry > 0.0 && m.martingale_z.abs() > 5.0 {
+    } else if needs_forward && m.martingale_z.abs() > 5.0 {
         unsure.push(format!(
             "mc sample misses the paths that carry the forward (martingale test z = {:.1})",
             m.martingale_z
         ));
-    } else if c.expiry > 0.0 && m.hits < MIN_MC_HITS {
-        unsure.push(format!("mc saw {} in-the-money paths", m.hits));
-    } else if c.expiry > 0.0 && m.ess < MIN_MC_ESS {
-        unsure.push(format!("mc effective sample size {:.0}", m.ess));
+    } else if simulated && m.hits < MIN_MC_HITS {
+        unsure.push(format!(
+            "mc saw {} paying paths under its sampling law ({})",
+            m.hits,
+            m.method.as_str()
+        ));
+    } else if simulated && m.ess < MIN_MC_ESS {
+        unsure.push(format!(
+            "mc effective sample size {:.0} of the weighted payoffs ({})",
+            m.ess,
+            m.method.as_str()
+        ));
     } else if degenerate_se {
         // The control replicated every simulated payoff: the paths that
         // would differ were never drawn, so the error bar says nothing.
         if diff.abs() > floor.max(1e-10 * s) {
             unsure.push(format!(
-                "mc standard error {:.1e} is degenerate (every path replicated by the control)",
+                "mc standard error {:.1e} is degenerate (every sampled payoff alike, or \
+                 replicated by the control)",
                 m.std_error
             ));
         }
