@@ -28,8 +28,8 @@
 //! are merged in block order, so the digits do not depend on the number of
 //! threads, on the order of the book or on how it is split.
 
-use crate::engines::mc_measure::Cumulant;
-use crate::model::Contract;
+use crate::engines::mc_measure::{Cumulant, MAX_TILTED_COUNT_MEAN};
+use crate::model::{Contract, OptionKind};
 use rand::{Rng, RngExt, SeedableRng};
 use rand_chacha::ChaCha8Rng;
 use rand_distr::{Distribution, StandardNormal};
@@ -46,6 +46,10 @@ pub const MAX_PATHS: u64 = 1 << 30;
 pub const GAMMA_RANGE: (f64, f64) = (1e-3, 1e3);
 /// Largest `|jump_mean_shift|` (the model's own bound on `|mu_J|`).
 pub const MAX_JUMP_MEAN_SHIFT: f64 = crate::model::MAX_LOG_JUMP;
+/// An out-of-the-money value whose Chernoff bound is below this fraction of
+/// spot is set to 0 without simulation (the cross-check's absolute floor is
+/// 1e-12 of spot, a thousand times more).
+pub const NEGLIGIBLE: f64 = 1e-15;
 /// Stream reserved for the pilot run that chooses the intensity multiplier.
 const PILOT_STREAM: u64 = u64::MAX;
 /// Stream reserved for the pilot runs of the tilted estimators.
@@ -211,8 +215,17 @@ pub enum McMethod {
         /// Converted from the other side by put-call parity.
         parity: bool,
     },
-    /// Share-measure form: two probabilities, each under its own tilted measure.
+    /// Share-measure form: `P^S(S_T < K)` and `P(S_T > K)` on their rare
+    /// sides, from paths drawn under the Esscher tilt between `P` and `P^S`
+    /// that puts the mean of `ln S_T` at `ln K`.
     ShareMeasure {
+        /// Converted from the other side by put-call parity.
+        parity: bool,
+    },
+    /// No simulation: a rigorous Chernoff bound shows the out-of-the-money
+    /// value below [`NEGLIGIBLE`] times spot; it is set to 0 with the bound
+    /// as its standard error.
+    Bound {
         /// Converted from the other side by put-call parity.
         parity: bool,
     },
@@ -233,6 +246,8 @@ impl McMethod {
             McMethod::EsscherJumpCount { parity: true } => "esscher+jump-count+parity",
             McMethod::ShareMeasure { parity: false } => "share-measure",
             McMethod::ShareMeasure { parity: true } => "share-measure+parity",
+            McMethod::Bound { parity: false } => "chernoff-bound",
+            McMethod::Bound { parity: true } => "chernoff-bound+parity",
         }
     }
 
@@ -244,6 +259,7 @@ impl McMethod {
             McMethod::Esscher { .. } => McMethod::Esscher { parity: p },
             McMethod::EsscherJumpCount { .. } => McMethod::EsscherJumpCount { parity: p },
             McMethod::ShareMeasure { .. } => McMethod::ShareMeasure { parity: p },
+            McMethod::Bound { .. } => McMethod::Bound { parity: p },
         }
     }
 }
@@ -263,7 +279,8 @@ pub enum MethodChoice {
         /// Jump-count factor on top of the tilted intensity.
         gamma: f64,
     },
-    /// Share-measure form on the out-of-the-money side.
+    /// Share-measure form (falls back to [`MethodChoice::JumpCount`] when
+    /// the tilt that puts the mean of `ln S_T` at `ln K` is outside `(0, 1)`).
     ShareMeasure,
 }
 
@@ -303,6 +320,11 @@ pub struct McEstimate {
     /// Paths that paid (non-zero payoff), counted under the sampling law
     /// before weighting; for the share-measure form the smaller count.
     pub hits: u64,
+    /// Paths on the other side of the strike (simulated paths minus
+    /// [`McEstimate::hits`]; the smaller count for the share-measure form).
+    /// Both sides must be seen: a sample that never leaves the paying side
+    /// cannot show the variance that the other side's rare paths carry.
+    pub misses: u64,
     /// Martingale test: `(mean of w e^{-rT} S_T - S e^{-qT}) / its standard error`
     /// for the untilted estimators (0 for the tilted ones, which do not use
     /// that control). Far from 0 (beyond 5) the sample misses the paths that
@@ -529,6 +551,9 @@ struct Law {
     theta: f64,
     count_mean: f64,
     shift: f64,
+    /// Tilt the Brownian part only (a drift change, Girsanov), leaving the
+    /// jump law to `count_mean`.
+    diffusion_only: bool,
 }
 
 /// Everything needed to simulate one payoff piece under one sampling law.
@@ -542,8 +567,10 @@ struct Simulation {
     alpha: f64,
     pay_strike: f64,
     beta: f64,
-    /// Esscher tilt (0: the untilted weight below).
+    /// Esscher tilt (0: the untilted weight below) of the Brownian part, and
+    /// of the jump sizes (`theta`, or 0 for a diffusion-only tilt).
     theta: f64,
+    jump_theta: f64,
     /// Untilted: likelihood weight per jump count,
     /// (lambda/lambda~)^n exp((lambda~-lambda)T). Tilted: log weight per
     /// jump count at b = 0 (`lw0 + n lw_slope`).
@@ -569,13 +596,14 @@ impl Simulation {
         let t = c.expiry;
         let cum = Cumulant::new(c);
         let th = law.theta;
+        let jump_theta = if law.diffusion_only { 0.0 } else { th };
         let count_mean = law.count_mean;
-        let lam_t = if th == 0.0 {
+        let lam_t = if jump_theta == 0.0 {
             c.jump_intensity()
         } else {
             cum.tilted_rate(th) * t
         };
-        let mu_s = c.jumps.mean + th * cum.jump_var + law.shift;
+        let mu_s = c.jumps.mean + jump_theta * cum.jump_var + law.shift;
         // Weight of n jumps: (lambda T / M)^n exp(M - lambda T).
         let (log_ratio, weight_const) = if count_mean == 0.0 {
             (0.0, 0.0)
@@ -598,18 +626,26 @@ impl Simulation {
         if th != 0.0 {
             sampler.drift_dt += th * cum.var * t;
         }
-        let (lw0, lw_slope) = (
-            -th * sampler.drift_dt + t * cum.psi(th) + weight_const,
-            log_ratio - th * mu_s,
-        );
+        // Log weight at b = 0: full tilt -theta X + T psi(theta), diffusion
+        // tilt -theta D + theta^2 sigma^2 T / 2 with D = theta sigma^2 T + sigma W.
+        let (lw0, lw_slope) = if law.diffusion_only {
+            (-0.5 * th * th * cum.var * t + weight_const, log_ratio)
+        } else {
+            (
+                -th * sampler.drift_dt + t * cum.psi(th) + weight_const,
+                log_ratio - th * mu_s,
+            )
+        };
         let weight_table = (0..TABLE_N)
             .map(|n| {
                 let nf = n as f64;
                 let jumps_part = if n == 0 { 0.0 } else { nf * log_ratio };
                 if th == 0.0 {
                     (jumps_part + weight_const).exp()
+                } else if n == 0 {
+                    lw0
                 } else {
-                    lw0 + jumps_part - if n == 0 { 0.0 } else { th * nf * mu_s }
+                    lw0 + nf * lw_slope
                 }
             })
             .collect();
@@ -627,6 +663,7 @@ impl Simulation {
         // not grow with N.
         let count_bounded = count_mean == 0.0 || lam_t == 0.0 || count_mean >= lam_t;
         let bounded = shift.is_none()
+            && !law.diffusion_only
             && count_bounded
             && match piece {
                 Piece::Vanilla if sign > 0.0 => th >= 1.0,
@@ -644,6 +681,7 @@ impl Simulation {
             pay_strike,
             beta,
             theta: th,
+            jump_theta,
             weight_table,
             log_ratio,
             weight_const,
@@ -651,8 +689,8 @@ impl Simulation {
             lw_slope,
             shift,
             antithetic,
-            cv_discount: (th == 0.0).then_some(discount),
-            control_mean: if th == 0.0 {
+            cv_discount: (jump_theta == 0.0).then_some(discount),
+            control_mean: if jump_theta == 0.0 {
                 c.spot * (-c.div_yield * t).exp()
             } else {
                 0.0
@@ -698,6 +736,17 @@ impl Simulation {
         }
     }
 
+    /// True when the priced option pays on this path: a non-zero payoff,
+    /// or for `min(S_T, K)` (which prices the call) `S_T > K`.
+    #[inline]
+    fn paid(&self, st: f64, f: f64) -> bool {
+        if self.piece == Piece::Min {
+            st > self.strike
+        } else {
+            f != 0.0
+        }
+    }
+
     /// Simulates `pairs` samples (antithetic pairs or single paths) from `rng`.
     fn run_block<R: Rng>(&self, rng: &mut R, pairs: u64) -> Moments {
         let mut m = Moments::default();
@@ -721,7 +770,8 @@ impl Simulation {
             } else {
                 0.0
             };
-            let b = self.sampler.sigma_sqrt_dt * z1 + jump_noise;
+            let diffusion = self.sampler.sigma_sqrt_dt * z1;
+            let b = diffusion + jump_noise;
             let ea = if (n as usize) < TABLE_N {
                 self.exp_a[n as usize]
             } else {
@@ -733,7 +783,7 @@ impl Simulation {
             let j = jump_mean_part + jump_noise;
             let (w, w_2) = if tilted {
                 let lw = self.log_weight(n);
-                let tb = self.theta * b;
+                let tb = self.theta * diffusion + self.jump_theta * jump_noise;
                 ((lw - tb).exp(), (lw + tb).exp())
             } else {
                 let w = self.weight(n, j);
@@ -755,7 +805,7 @@ impl Simulation {
                 sum_wf2 += t1 * f + t2 * f2;
                 sum_t += t1 + t2;
                 sum_t2 += t1 * t1 + t2 * t2;
-                hits += (f != 0.0) as u64 + (f2 != 0.0) as u64;
+                hits += self.paid(st, f) as u64 + self.paid(st2, f2) as u64;
                 let cv = match self.cv_discount {
                     Some(d) => 0.5 * d * (w * st + w_2 * st2),
                     None => 0.0,
@@ -765,7 +815,7 @@ impl Simulation {
                 sum_wf2 += t1 * f;
                 sum_t += t1;
                 sum_t2 += t1 * t1;
-                hits += (f != 0.0) as u64;
+                hits += self.paid(st, f) as u64;
                 let cv = match self.cv_discount {
                     Some(d) => d * w * st,
                     None => 0.0,
@@ -898,6 +948,8 @@ impl Plan {
             beta: 0.0,
             martingale_z: 0.0,
             hits: u64::MAX,
+            misses: u64::MAX,
+            all_zero: false,
             ess: f64::INFINITY,
             paths: 0.0,
             plain_second_moment: 0.0,
@@ -916,6 +968,8 @@ impl Plan {
                 };
             }
             out.hits = out.hits.min(m.hits);
+            out.all_zero |= m.sum_t == 0.0;
+            out.misses = out.misses.min(m.paths as u64 - m.hits);
             out.ess = out.ess.min(m.ess());
             out.paths += m.paths;
             // E_P[f^2] of the simulated payoff.
@@ -932,6 +986,9 @@ struct Combined {
     beta: f64,
     martingale_z: f64,
     hits: u64,
+    misses: u64,
+    /// Some simulation's terms are all zero.
+    all_zero: bool,
     ess: f64,
     paths: f64,
     plain_second_moment: f64,
@@ -979,6 +1036,27 @@ fn region_impossible(c: &Contract, sign: f64) -> bool {
     }
 }
 
+/// A rigorous upper bound on the value of the vanilla option `c` (Chernoff:
+/// for any `theta` on the bounded side, `E[e^{-rT} g(X)] <= e^{-rT}
+/// e^{T psi(theta)} sup_x g(x) e^{-theta x}`; with `g` the call payoff,
+/// `sup = K/(theta-1) ((theta-1) S / (theta K))^theta`, `theta > 1`; the put
+/// payoff, `sup = K/(1-theta) (-theta K / ((1-theta) S))^(-theta)`,
+/// `theta < 0`), at the vanilla saddle point. `None` when no tilt is admissible.
+pub fn chernoff_bound(c: &Contract) -> Option<f64> {
+    let cum = Cumulant::new(c);
+    let x0 = (c.strike / c.spot).ln();
+    let call = c.kind.sign() > 0.0;
+    let th = cum.theta_vanilla(x0, call)?;
+    let ln_sup = if call {
+        c.strike.ln() - (th - 1.0).ln() + th * ((th - 1.0) / th).ln() - th * x0
+    } else {
+        let u = -th;
+        c.strike.ln() - (1.0 + u).ln() + u * (u / (1.0 + u)).ln() + u * x0
+    };
+    let ln_b = -c.rate * c.expiry + c.expiry * cum.psi(th) + ln_sup;
+    Some(ln_b.exp()).filter(|b| b.is_finite())
+}
+
 /// Prices one contract by Monte Carlo with a given estimator choice.
 pub fn price_with(c: &Contract, key: u64, cfg: &McConfig, choice: MethodChoice) -> McEstimate {
     let start = Instant::now();
@@ -995,6 +1073,7 @@ pub fn price_with(c: &Contract, key: u64, cfg: &McConfig, choice: MethodChoice) 
             theta: 0.0,
             count_mean,
             shift: cfg.jump_mean_shift,
+            diffusion_only: false,
         };
         let plain = gamma == 1.0 && cfg.jump_mean_shift == 0.0;
         let plan = Plan {
@@ -1020,19 +1099,42 @@ pub fn price_with(c: &Contract, key: u64, cfg: &McConfig, choice: MethodChoice) 
     let side = if c.strike > c.forward() { 1.0 } else { -1.0 };
     let otm = Contract {
         kind: if side > 0.0 {
-            crate::model::OptionKind::Call
+            OptionKind::Call
         } else {
-            crate::model::OptionKind::Put
+            OptionKind::Put
         },
         ..*c
     };
-    if region_impossible(&otm, side) {
-        let shift = if side != c.kind.sign() {
+    let parity_shift = |s: f64| {
+        if s != c.kind.sign() {
             c.kind.sign() * forward_intrinsic(c)
         } else {
             0.0
-        };
-        return exact(shift, start);
+        }
+    };
+    // A side whose value a Chernoff bound puts below NEGLIGIBLE x spot.
+    if let Some(bound) = chernoff_bound(&otm) {
+        if bound <= NEGLIGIBLE * c.spot {
+            let p = parity_shift(side);
+            let mut e = exact(p, start);
+            e.method = McMethod::Bound {
+                parity: side != c.kind.sign(),
+            };
+            e.std_error = bound;
+            e.ci95 = (p - 1.96 * bound, p + 1.96 * bound);
+            return e;
+        }
+    }
+    // A side that cannot pay is worth exactly 0; the row by parity.
+    for s in [side, -side] {
+        if region_impossible(c, s) {
+            let shift = if s != c.kind.sign() {
+                c.kind.sign() * forward_intrinsic(c)
+            } else {
+                0.0
+            };
+            return exact(shift, start);
+        }
     }
     let mut plan = match choice {
         MethodChoice::Auto => pick(&otm, key, cfg),
@@ -1069,6 +1171,7 @@ fn exact(p: f64, start: Instant) -> McEstimate {
         variance_reduction: 1.0,
         ess: 0.0,
         hits: 0,
+        misses: 0,
         martingale_z: 0.0,
         bounded: true,
     }
@@ -1120,6 +1223,7 @@ fn run_plan(plan: &Plan, key: u64, cfg: &McConfig, shift: f64, start: Instant) -
         }
     }
     let r = plan.combine(&ms, cfg.control_variate);
+    let p = r.price + shift;
     let se = r.var.sqrt();
     let plain_var = (r.plain_second_moment - r.plain_mean * r.plain_mean).max(0.0);
     let vrf = if se > 0.0 {
@@ -1127,7 +1231,6 @@ fn run_plan(plan: &Plan, key: u64, cfg: &McConfig, shift: f64, start: Instant) -
     } else {
         f64::INFINITY
     };
-    let p = r.price + shift;
     McEstimate {
         method: plan.method,
         price: p,
@@ -1141,6 +1244,7 @@ fn run_plan(plan: &Plan, key: u64, cfg: &McConfig, shift: f64, start: Instant) -
         variance_reduction: vrf,
         ess: r.ess,
         hits: r.hits,
+        misses: r.misses,
         martingale_z: r.martingale_z,
         bounded: plan.sims.iter().all(|s| s.bounded),
     }
@@ -1152,6 +1256,7 @@ fn jump_count_plan(c: &Contract, gamma: f64, cfg: &McConfig) -> Plan {
         theta: 0.0,
         count_mean: gamma * c.jump_intensity(),
         shift: cfg.jump_mean_shift,
+        diffusion_only: false,
     };
     let plain = gamma == 1.0 && cfg.jump_mean_shift == 0.0;
     Plan {
@@ -1180,6 +1285,13 @@ enum Tilt {
     Saddle,
     /// Tilted mean of `ln S_T` at `ln K`, kept on the bounded side.
     MeanAtStrike,
+    /// A single jump (with the drift) lands at `ln K` on average:
+    /// `theta = (x0 - mu_J - mT) / (delta^2 + sigma^2 T)`, and the mean jump
+    /// count is raised to at least 1 by a jump-count factor. For wings
+    /// reached by one unusual jump against the jumps' mean (an upward move
+    /// on crash jumps), where the saddle point overshoots the jump size
+    /// and leaves jumps rare.
+    OneJump,
 }
 
 /// The Esscher estimator of the vanilla option `c` (its own side), or
@@ -1188,8 +1300,27 @@ fn esscher_plan(c: &Contract, tilt: Tilt, gamma: f64, cfg: &McConfig) -> Option<
     let cum = Cumulant::new(c);
     let x0 = (c.strike / c.spot).ln();
     let call = c.kind.sign() > 0.0;
+    let mut gamma = gamma;
     let theta = match tilt {
         Tilt::Saddle => cum.theta_vanilla(x0, call)?,
+        Tilt::OneJump => {
+            let scale = cum.jump_var + cum.var * c.expiry;
+            if scale <= 0.0 || c.jumps.rate == 0.0 {
+                return None;
+            }
+            let t = (x0 - cum.mean - cum.drift * c.expiry) / scale;
+            if (call && t < 1.0) || (!call && t > 0.0) || !cum.admissible(t) {
+                return None;
+            }
+            // (A tilted law with many jumps is the saddle point's business:
+            // this tilt assumes one jump carries the move.)
+            let count = cum.tilted_rate(t) * c.expiry;
+            if !(count > 0.0 && count <= 1.0) {
+                return None;
+            }
+            gamma = (1.0 / count).max(1.0);
+            t
+        }
         Tilt::MeanAtStrike => {
             let t = cum.theta_mean_at(x0)?;
             if call {
@@ -1204,8 +1335,9 @@ fn esscher_plan(c: &Contract, tilt: Tilt, gamma: f64, cfg: &McConfig) -> Option<
     }
     let law = Law {
         theta,
-        count_mean: gamma * cum.tilted_rate(theta) * c.expiry,
+        count_mean: (gamma * cum.tilted_rate(theta) * c.expiry).min(MAX_TILTED_COUNT_MEAN),
         shift: 0.0,
+        diffusion_only: false,
     };
     Some(Plan {
         method: if gamma == 1.0 {
@@ -1246,6 +1378,7 @@ fn share_plan(c: &Contract, cfg: &McConfig) -> Option<Plan> {
         theta: tm,
         count_mean: cum.tilted_rate(tm) * c.expiry,
         shift: 0.0,
+        diffusion_only: false,
     };
     Some(Plan {
         method: McMethod::ShareMeasure { parity: false },
@@ -1284,6 +1417,11 @@ fn score(plan: &Plan, key: u64, cfg: &McConfig, stream: u64, pairs: u64) -> Pilo
         trusted: var.is_finite()
             && r.price.is_finite()
             && r.hits >= PILOT_MIN_HITS
+            && r.misses >= PILOT_MIN_HITS
+            // Paying paths whose weighted payoffs all underflow: the tilt
+            // went where the value is not (a negligible value is caught by
+            // the Chernoff bound before any pilot).
+            && !r.all_zero
             && r.ess >= PILOT_MIN_ESS
             // A control that replicates every sampled payoff says nothing.
             && (r.beta == 0.0 || r.var.sqrt() > 1e-10 * r.price.abs())
@@ -1291,11 +1429,22 @@ fn score(plan: &Plan, key: u64, cfg: &McConfig, stream: u64, pairs: u64) -> Pilo
     }
 }
 
-/// The pick rule (module doc): every candidate estimator of the
-/// out-of-the-money option `c` runs a pilot on its reserved stream; among
-/// the trusted ones the smallest variance per path wins, the untilted
-/// estimator on a tie within [`PLAIN_PREFERENCE`]; when none is trusted, the
-/// one with the largest effective sample size.
+/// The pick rule (module doc). Candidates, all for the out-of-the-money
+/// option `c` (with respect to the forward) or its parity partner:
+/// the untilted estimator (jump-count factor from its own pilot); the
+/// Esscher tilt at the vanilla saddle point (with jump-count factor 1 and
+/// 2) and at the strike, on the side where the tilt `theta_m` that puts the
+/// mean of `ln S_T` at `ln K` says the paying paths are rare under both `P`
+/// and the share measure (call for `theta_m >= 1`, put for `theta_m <= 0`);
+/// the share-measure form when `0 < theta_m < 1`; the one-jump tilt on
+/// either side. Each runs a pilot on its
+/// reserved stream; a pilot is trusted when at least [`PILOT_MIN_HITS`]
+/// paths fell on each side of the strike, its terms' effective sample size
+/// is at least [`PILOT_MIN_ESS`], a control did not replicate every payoff,
+/// and an estimator that is not bounded by construction passed the
+/// martingale test. Among the trusted the smallest variance per path wins,
+/// the untilted estimator on a tie within [`PLAIN_PREFERENCE`]; when none is
+/// trusted, the candidate with the largest effective sample size.
 fn pick(c: &Contract, key: u64, cfg: &McConfig) -> Plan {
     let pairs = pilot_pairs(cfg);
     let gamma = choose_intensity_pairs(c, key, cfg, pairs);
@@ -1304,22 +1453,41 @@ fn pick(c: &Contract, key: u64, cfg: &McConfig) -> Plan {
         return base;
     }
     let base_score = score(&base, key, cfg, PILOT_STREAM, pairs);
+    let cum = Cumulant::new(c);
+    let x0 = (c.strike / c.spot).ln();
+    let with_kind = |kind| Contract { kind, ..*c };
+    let vanilla_side = match cum.theta_mean_at(x0) {
+        Some(t) if t >= 1.0 => with_kind(OptionKind::Call),
+        Some(t) if t <= 0.0 => with_kind(OptionKind::Put),
+        _ => *c,
+    };
     let mut tilted: Vec<Plan> = Vec::new();
-    tilted.extend(esscher_plan(c, Tilt::Saddle, 1.0, cfg));
+    tilted.extend(esscher_plan(&vanilla_side, Tilt::Saddle, 1.0, cfg));
     if c.jump_intensity() > 0.0 {
-        tilted.extend(esscher_plan(c, Tilt::Saddle, 2.0, cfg));
+        tilted.extend(esscher_plan(&vanilla_side, Tilt::Saddle, 2.0, cfg));
     }
-    tilted.extend(esscher_plan(c, Tilt::MeanAtStrike, 1.0, cfg));
+    tilted.extend(esscher_plan(&vanilla_side, Tilt::MeanAtStrike, 1.0, cfg));
     tilted.extend(share_plan(c, cfg));
+    if c.jump_intensity() > 0.0 {
+        for side in [OptionKind::Call, OptionKind::Put] {
+            tilted.extend(esscher_plan(&with_kind(side), Tilt::OneJump, 1.0, cfg));
+        }
+    }
     let scores: Vec<PilotScore> = tilted
         .iter()
         .map(|p| score(p, key, cfg, TILT_PILOT_STREAM, pairs))
         .collect();
+    if std::env::var_os("SALTUS_MC_DEBUG").is_some() {
+        eprintln!("base {:?} gamma {gamma}", base_score);
+        for (p, s) in tilted.iter().zip(&scores) {
+            eprintln!("{} theta {} gamma {} kind {} {:?}", p.method.as_str(), p.sims[0].theta, p.gamma, p.kind, s);
+        }
+    }
     let best_tilted = scores
         .iter()
         .enumerate()
         .filter(|(_, s)| s.trusted)
-        .min_by(|a, b| a.1.var.total_cmp(&b.1.var));
+        .min_by(|a, b| a.1.var.total_cmp(&b.1.var).then(a.0.cmp(&b.0)));
     match best_tilted {
         Some((i, s)) if !(base_score.trusted && base_score.var <= PLAIN_PREFERENCE * s.var) => {
             tilted.swap_remove(i)
@@ -1374,6 +1542,7 @@ fn choose_gamma(c: &Contract, key: u64, cfg: &McConfig, pairs: u64) -> f64 {
             theta: 0.0,
             count_mean: g * lam_t,
             shift: cfg.jump_mean_shift,
+            diffusion_only: false,
         };
         let sim = Simulation::new(c, c.kind.sign(), Piece::Vanilla, law, cfg.antithetic);
         let m = sim.pilot(key, PILOT_STREAM, pairs);

@@ -11,7 +11,9 @@
 //!   or the row's scale is outside double precision for it), the Fourier
 //!   check is inconclusive with the engine's reason, and the series and
 //!   Monte Carlo results are still reported.
-//! - Monte Carlo agrees when `|z| <= z_max`, `z = (price_mc - price_series) / mc_stderr`.
+//! - Monte Carlo agrees when `|z| <= z_max`,
+//!   `z = (price_mc - price_series) / sqrt(mc_stderr^2 + rounding^2)` with
+//!   `rounding` [`ROUNDING_ULPS`] units in the last place of the two prices.
 //!   The engine simulates the out-of-the-money side (deep in-the-money rows
 //!   by put-call parity) under the change of measure its pilot picked
 //!   (`mc_method`, docs/engines.md). Its standard error is trusted when:
@@ -33,13 +35,17 @@
 //!   standard error (every sampled term alike: a law with one possible
 //!   outcome on the paying side, or a control that replicates every
 //!   simulated payoff) agrees within the absolute floor and is inconclusive
-//!   otherwise; `mc_method` `exact` (expiry 0, or a lattice law whose support
-//!   cannot reach the strike) is compared within the floor too.
+//!   otherwise. Rows priced without simulation (`mc_method` `exact`: expiry
+//!   0, or a lattice law whose support cannot reach the strike;
+//!   `chernoff-bound`: a rigorous bound puts the out-of-the-money value
+//!   below 1e-15 of spot, and `mc_stderr` is that bound) agree within
+//!   `max(floor, 1e-10 x price, z_max x bound)` and disagree otherwise; they
+//!   have no z-score.
 //! - The row's verdict is `disagree: ...` if any check fails, `inconclusive: ...`
 //!   if none fails but one could not decide, otherwise `agree`.
 
 use crate::engines::fourier::{self, FourierResult};
-use crate::engines::monte_carlo::{self, McConfig, McEstimate, McMethod};
+use crate::engines::monte_carlo::{self, McConfig, McEstimate};
 use crate::engines::series;
 use crate::model::Contract;
 
@@ -49,6 +55,8 @@ use crate::model::Contract;
 pub const MIN_MC_HITS: u64 = 100;
 /// Smallest effective sample size of the weighted payoffs for a verdict.
 pub const MIN_MC_ESS: f64 = 1000.0;
+/// Units in the last place of the two prices counted in the z-score's scale.
+pub const ROUNDING_ULPS: f64 = 4.0;
 /// Absolute floor of every comparison, as a fraction of spot (rounding level).
 pub const ABS_FLOOR: f64 = 1e-12;
 
@@ -146,8 +154,12 @@ pub fn check(c: &Contract, key: u64, cfg: &CheckConfig) -> Result<RowCheck, Chec
     let diff = m.price - s;
     // A z-score that overflows (a standard error far below the difference)
     // is not reported as a number.
-    let mc_z = if m.std_error > 0.0 {
-        Some(diff / m.std_error).filter(|z| z.is_finite())
+    // The z-score's scale is the standard error and the rounding of the two
+    // prices (a few units in their last place): a tiny out-of-the-money
+    // estimate plus a large parity term is not known better than that.
+    let rounding = ROUNDING_ULPS * f64::EPSILON * (s.abs() + m.price.abs());
+    let mc_z = if m.std_error > 0.0 && m.paths > 0 {
+        Some(diff / m.std_error.hypot(rounding)).filter(|z| z.is_finite())
     } else {
         None
     };
@@ -159,8 +171,8 @@ pub fn check(c: &Contract, key: u64, cfg: &CheckConfig) -> Result<RowCheck, Chec
     // forward intrinsic has a genuinely tiny standard error.)
     let degenerate_se =
         m.std_error == 0.0 || (m.beta != 0.0 && m.std_error <= 1e-9 * s.max(floor));
-    let needs_forward = c.expiry > 0.0 && !m.bounded && m.method != McMethod::Exact;
-    let simulated = c.expiry > 0.0 && m.method != McMethod::Exact;
+    let simulated = c.expiry > 0.0 && m.paths > 0;
+    let needs_forward = simulated && !m.bounded;
     if needs_forward && !m.martingale_z.is_finite() {
         // The z-score itself is undefined: say why instead of printing it.
         unsure.push(
@@ -183,12 +195,29 @@ pub fn check(c: &Contract, key: u64, cfg: &CheckConfig) -> Result<RowCheck, Chec
             m.hits,
             m.method.as_str()
         ));
+    } else if simulated && m.misses < MIN_MC_HITS {
+        unsure.push(format!(
+            "mc saw {} paths on the non-paying side of the strike ({}): the other side's \
+             rare paths are not represented",
+            m.misses,
+            m.method.as_str()
+        ));
     } else if simulated && m.ess < MIN_MC_ESS {
         unsure.push(format!(
             "mc effective sample size {:.0} of the weighted payoffs ({})",
             m.ess,
             m.method.as_str()
         ));
+    } else if !simulated {
+        // Exact (expiry 0, or a side that cannot pay) or a Chernoff bound
+        // (std_error is the bound): within the floor or the bound.
+        let tol = floor.max(1e-10 * s).max(cfg.z_max * m.std_error);
+        if diff.abs() > tol {
+            fails.push(format!(
+                "mc {} value differs by {diff:.3e} (tolerance {tol:.1e})",
+                m.method.as_str()
+            ));
+        }
     } else if degenerate_se {
         // The control replicated every simulated payoff: the paths that
         // would differ were never drawn, so the error bar says nothing.
