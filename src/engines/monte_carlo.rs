@@ -56,7 +56,10 @@ const PILOT_STREAM: u64 = u64::MAX;
 const TILT_PILOT_STREAM: u64 = u64::MAX - 1;
 /// Most pairs in a pilot run ([`pilot_pairs`]).
 const PILOT_PAIRS: u64 = 16_384;
-/// A pilot needs this effective sample size of its terms for its variance
+/// Smallest effective sample size of the weighted payoffs for an error bar
+/// to be trusted (the cross-check's `MIN_MC_ESS`; common practice).
+pub const MIN_ESS: f64 = 1000.0;
+/// A pilot needs at least this effective sample size of its terms for its variance
 /// estimate to be trusted by the pick rule.
 const PILOT_MIN_ESS: f64 = 50.0;
 /// The untilted estimator wins when its pilot variance per path is at most
@@ -995,6 +998,16 @@ struct Combined {
     plain_mean: f64,
 }
 
+/// Smallest effective sample size a pilot of `pilot_paths` must show: the
+/// main run should reach twice [`MIN_ESS`] at the same rate, and never
+/// below [`PILOT_MIN_ESS`].
+fn pilot_min_ess(cfg: &McConfig, pilot_paths: f64) -> f64 {
+    match cfg.work {
+        Work::Paths(p) => (2.0 * MIN_ESS * pilot_paths / p as f64).max(PILOT_MIN_ESS),
+        _ => PILOT_MIN_ESS,
+    }
+}
+
 /// Pairs in a pilot run: a 32nd of the paths asked for, between 2,048 and
 /// 16,384 pairs (16,384 for the target-standard-error modes).
 fn pilot_pairs(cfg: &McConfig) -> u64 {
@@ -1112,6 +1125,17 @@ pub fn price_with(c: &Contract, key: u64, cfg: &McConfig, choice: MethodChoice) 
             0.0
         }
     };
+    // A side that cannot pay is worth exactly 0; the row by parity.
+    for s in [side, -side] {
+        if region_impossible(c, s) {
+            let shift = if s != c.kind.sign() {
+                c.kind.sign() * forward_intrinsic(c)
+            } else {
+                0.0
+            };
+            return exact(shift, start);
+        }
+    }
     // A side whose value a Chernoff bound puts below NEGLIGIBLE x spot.
     if let Some(bound) = chernoff_bound(&otm) {
         if bound <= NEGLIGIBLE * c.spot {
@@ -1123,17 +1147,6 @@ pub fn price_with(c: &Contract, key: u64, cfg: &McConfig, choice: MethodChoice) 
             e.std_error = bound;
             e.ci95 = (p - 1.96 * bound, p + 1.96 * bound);
             return e;
-        }
-    }
-    // A side that cannot pay is worth exactly 0; the row by parity.
-    for s in [side, -side] {
-        if region_impossible(c, s) {
-            let shift = if s != c.kind.sign() {
-                c.kind.sign() * forward_intrinsic(c)
-            } else {
-                0.0
-            };
-            return exact(shift, start);
         }
     }
     let mut plan = match choice {
@@ -1333,6 +1346,13 @@ fn esscher_plan(c: &Contract, tilt: Tilt, gamma: f64, cfg: &McConfig) -> Option<
     if theta == 0.0 || !cum.admissible(theta) {
         return None;
     }
+    // The jump-count factor's weights must keep a moderate second moment
+    // (as for the untilted pilot's candidates).
+    let lam_theta_t = cum.tilted_rate(theta) * c.expiry;
+    if gamma != 1.0 && lam_theta_t * (gamma - 1.0).powi(2) / gamma > MAX_LOG_WEIGHT_SECOND_MOMENT
+    {
+        return None;
+    }
     let law = Law {
         theta,
         count_mean: (gamma * cum.tilted_rate(theta) * c.expiry).min(MAX_TILTED_COUNT_MEAN),
@@ -1422,7 +1442,7 @@ fn score(plan: &Plan, key: u64, cfg: &McConfig, stream: u64, pairs: u64) -> Pilo
             // went where the value is not (a negligible value is caught by
             // the Chernoff bound before any pilot).
             && !r.all_zero
-            && r.ess >= PILOT_MIN_ESS
+            && r.ess >= pilot_min_ess(cfg, r.paths)
             // A control that replicates every sampled payoff says nothing.
             && (r.beta == 0.0 || r.var.sqrt() > 1e-10 * r.price.abs())
             && (bounded || r.martingale_z.abs() <= 5.0),

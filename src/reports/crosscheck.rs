@@ -54,7 +54,7 @@ use crate::model::Contract;
 /// error from fewer paying paths is itself too noisy to judge by).
 pub const MIN_MC_HITS: u64 = 100;
 /// Smallest effective sample size of the weighted payoffs for a verdict.
-pub const MIN_MC_ESS: f64 = 1000.0;
+pub const MIN_MC_ESS: f64 = monte_carlo::MIN_ESS;
 /// Units in the last place of the two prices counted in the z-score's scale.
 pub const ROUNDING_ULPS: f64 = 4.0;
 /// Absolute floor of every comparison, as a fraction of spot (rounding level).
@@ -151,6 +151,51 @@ pub fn check(c: &Contract, key: u64, cfg: &CheckConfig) -> Result<RowCheck, Chec
             Some(gap)
         }
     };
+    let mv = mc_verdict(c, s, &m, cfg.z_max);
+    let mc_z = mv.z;
+    match mv.outcome {
+        Outcome::Disagree => fails.extend(mv.reason),
+        Outcome::Inconclusive => unsure.extend(mv.reason),
+        Outcome::Agree => {}
+    }
+    let (outcome, verdict) = if !fails.is_empty() {
+        (Outcome::Disagree, format!("disagree: {}", fails.join("; ")))
+    } else if !unsure.is_empty() {
+        (
+            Outcome::Inconclusive,
+            format!("inconclusive: {}", unsure.join("; ")),
+        )
+    } else {
+        (Outcome::Agree, "agree".to_string())
+    };
+    Ok(RowCheck {
+        price_series: s,
+        fourier: fourier.ok(),
+        mc: m,
+        mc_z,
+        fourier_gap: gap,
+        outcome,
+        verdict,
+    })
+}
+
+/// The Monte Carlo side of a row's verdict.
+#[derive(Debug, Clone, PartialEq)]
+pub struct McVerdict {
+    /// Agree, inconclusive or disagree.
+    pub outcome: Outcome,
+    /// Why, when not `Agree`.
+    pub reason: Option<String>,
+    /// The z-score, when defined (simulated rows only).
+    pub z: Option<f64>,
+}
+
+/// Judges a Monte Carlo estimate `m` of contract `c` against the series
+/// price `s` by the rules in the module doc.
+pub fn mc_verdict(c: &Contract, s: f64, m: &McEstimate, z_max: f64) -> McVerdict {
+    let floor = ABS_FLOOR * c.spot;
+    let mut fails: Option<String> = None;
+    let mut unsure: Option<String> = None;
     let diff = m.price - s;
     // A z-score that overflows (a standard error far below the difference)
     // is not reported as a number.
@@ -175,7 +220,7 @@ pub fn check(c: &Contract, key: u64, cfg: &CheckConfig) -> Result<RowCheck, Chec
     let needs_forward = simulated && !m.bounded;
     if needs_forward && !m.martingale_z.is_finite() {
         // The z-score itself is undefined: say why instead of printing it.
-        unsure.push(
+        unsure = Some(
             if m.martingale_z.is_nan() {
                 "mc martingale test undefined (the simulated terminal prices overflow)"
             } else {
@@ -185,25 +230,25 @@ pub fn check(c: &Contract, key: u64, cfg: &CheckConfig) -> Result<RowCheck, Chec
             .to_string(),
         );
     } else if needs_forward && m.martingale_z.abs() > 5.0 {
-        unsure.push(format!(
+        unsure = Some(format!(
             "mc sample misses the paths that carry the forward (martingale test z = {:.1})",
             m.martingale_z
         ));
     } else if simulated && m.hits < MIN_MC_HITS {
-        unsure.push(format!(
+        unsure = Some(format!(
             "mc saw {} paying paths under its sampling law ({})",
             m.hits,
             m.method.as_str()
         ));
     } else if simulated && m.misses < MIN_MC_HITS {
-        unsure.push(format!(
+        unsure = Some(format!(
             "mc saw {} paths on the non-paying side of the strike ({}): the other side's \
              rare paths are not represented",
             m.misses,
             m.method.as_str()
         ));
     } else if simulated && m.ess < MIN_MC_ESS {
-        unsure.push(format!(
+        unsure = Some(format!(
             "mc effective sample size {:.0} of the weighted payoffs ({})",
             m.ess,
             m.method.as_str()
@@ -211,9 +256,9 @@ pub fn check(c: &Contract, key: u64, cfg: &CheckConfig) -> Result<RowCheck, Chec
     } else if !simulated {
         // Exact (expiry 0, or a side that cannot pay) or a Chernoff bound
         // (std_error is the bound): within the floor or the bound.
-        let tol = floor.max(1e-10 * s).max(cfg.z_max * m.std_error);
+        let tol = floor.max(1e-10 * s).max(z_max * m.std_error);
         if diff.abs() > tol {
-            fails.push(format!(
+            fails = Some(format!(
                 "mc {} value differs by {diff:.3e} (tolerance {tol:.1e})",
                 m.method.as_str()
             ));
@@ -222,41 +267,32 @@ pub fn check(c: &Contract, key: u64, cfg: &CheckConfig) -> Result<RowCheck, Chec
         // The control replicated every simulated payoff: the paths that
         // would differ were never drawn, so the error bar says nothing.
         if diff.abs() > floor.max(1e-10 * s) {
-            unsure.push(format!(
+            unsure = Some(format!(
                 "mc standard error {:.1e} is degenerate (every sampled payoff alike, or \
                  replicated by the control)",
                 m.std_error
             ));
         }
     } else if let Some(z) = mc_z {
-        if z.abs() > cfg.z_max && diff.abs() > floor {
-            fails.push(format!("mc z = {z:.2} beyond {}", cfg.z_max));
+        if z.abs() > z_max && diff.abs() > floor {
+            fails = Some(format!("mc z = {z:.2} beyond {}", z_max));
         }
     } else if m.std_error > 0.0 && diff.abs() > floor {
-        fails.push(format!(
+        fails = Some(format!(
             "mc differs by {diff:.3e} with a standard error of {:.1e} (z beyond double range)",
             m.std_error
         ));
     }
-    let (outcome, verdict) = if !fails.is_empty() {
-        (Outcome::Disagree, format!("disagree: {}", fails.join("; ")))
-    } else if !unsure.is_empty() {
-        (
-            Outcome::Inconclusive,
-            format!("inconclusive: {}", unsure.join("; ")),
-        )
-    } else {
-        (Outcome::Agree, "agree".to_string())
+    let (outcome, reason) = match (fails, unsure) {
+        (Some(f), _) => (Outcome::Disagree, Some(f)),
+        (None, Some(u)) => (Outcome::Inconclusive, Some(u)),
+        (None, None) => (Outcome::Agree, None),
     };
-    Ok(RowCheck {
-        price_series: s,
-        fourier: fourier.ok(),
-        mc: m,
-        mc_z,
-        fourier_gap: gap,
+    McVerdict {
         outcome,
-        verdict,
-    })
+        reason,
+        z: mc_z,
+    }
 }
 
 /// Book-level summary of a cross-check, built from per-row records sorted
