@@ -56,6 +56,9 @@ const PILOT_STREAM: u64 = u64::MAX;
 const TILT_PILOT_STREAM: u64 = u64::MAX - 1;
 /// Most pairs in a pilot run ([`pilot_pairs`]).
 const PILOT_PAIRS: u64 = 16_384;
+/// A row is ordinary when its untilted pilot sees at least this share of
+/// its paths on each side of the strike (no tilt is then tried).
+const ORDINARY_SHARE: f64 = 0.05;
 /// Smallest effective sample size of the weighted payoffs for an error bar
 /// to be trusted (the cross-check's `MIN_MC_ESS`; common practice).
 pub const MIN_ESS: f64 = 1000.0;
@@ -1008,11 +1011,11 @@ fn pilot_min_ess(cfg: &McConfig, pilot_paths: f64) -> f64 {
     }
 }
 
-/// Pairs in a pilot run: a 32nd of the paths asked for, between 2,048 and
+/// Pairs in a pilot run: a 64th of the paths asked for, between 1,024 and
 /// 16,384 pairs (16,384 for the target-standard-error modes).
 fn pilot_pairs(cfg: &McConfig) -> u64 {
     match cfg.work {
-        Work::Paths(p) => (p / 32).clamp(2048, PILOT_PAIRS),
+        Work::Paths(p) => (p / 64).clamp(1024, PILOT_PAIRS),
         _ => PILOT_PAIRS,
     }
 }
@@ -1412,10 +1415,10 @@ fn share_plan(c: &Contract, cfg: &McConfig) -> Option<Plan> {
 /// What a pilot run says of a plan.
 #[derive(Debug, Clone, Copy)]
 struct PilotScore {
-    /// Variance per path of the whole estimator (each simulation of the
-    /// share-measure form gets half the paths).
+    /// Variance per path of the estimator.
     var: f64,
     hits: u64,
+    misses: u64,
     ess: f64,
     trusted: bool,
 }
@@ -1433,6 +1436,7 @@ fn score(plan: &Plan, key: u64, cfg: &McConfig, stream: u64, pairs: u64) -> Pilo
     PilotScore {
         var,
         hits: r.hits,
+        misses: r.misses,
         ess: r.ess,
         trusted: var.is_finite()
             && r.price.is_finite()
@@ -1473,6 +1477,16 @@ fn pick(c: &Contract, key: u64, cfg: &McConfig) -> Plan {
         return base;
     }
     let base_score = score(&base, key, cfg, PILOT_STREAM, pairs);
+    // An ordinary row: the untilted pilot is trusted and sees both sides of
+    // the strike often; no tilt is tried (it would cost more pilot paths
+    // than it saves).
+    let share = |n: u64| n as f64 / (2 * pairs) as f64;
+    if base_score.trusted
+        && share(base_score.hits) >= ORDINARY_SHARE
+        && share(base_score.misses) >= ORDINARY_SHARE
+    {
+        return base;
+    }
     let cum = Cumulant::new(c);
     let x0 = (c.strike / c.spot).ln();
     let with_kind = |kind| Contract { kind, ..*c };
@@ -1497,12 +1511,6 @@ fn pick(c: &Contract, key: u64, cfg: &McConfig) -> Plan {
         .iter()
         .map(|p| score(p, key, cfg, TILT_PILOT_STREAM, pairs))
         .collect();
-    if std::env::var_os("SALTUS_MC_DEBUG").is_some() {
-        eprintln!("base {:?} gamma {gamma}", base_score);
-        for (p, s) in tilted.iter().zip(&scores) {
-            eprintln!("{} theta {} gamma {} kind {} {:?}", p.method.as_str(), p.sims[0].theta, p.gamma, p.kind, s);
-        }
-    }
     let best_tilted = scores
         .iter()
         .enumerate()
