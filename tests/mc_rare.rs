@@ -149,7 +149,18 @@ fn coverage_of_the_95_percent_interval_on_a_deep_wing_set() {
         // A diffusion-driven deep put (jump vol near zero), a one-week 150%
         // call, and lambda T = 200 with log jump vol 0.5 (heavy tails).
         merton(Put, 100.0, 60.0, 0.5, 0.03, 0.0, 0.2, 0.5, -0.05, 0.005),
-        merton(Call, 100.0, 150.0, 7.0 / 365.0, 0.03, 0.0, 0.4, 1.0, -0.1, 0.2),
+        merton(
+            Call,
+            100.0,
+            150.0,
+            7.0 / 365.0,
+            0.03,
+            0.0,
+            0.4,
+            1.0,
+            -0.1,
+            0.2,
+        ),
         merton(Call, 100.0, 100.0, 1.0, 0.02, 0.0, 0.2, 200.0, -0.01, 0.5),
     ];
     let (share, n) = coverage(&cases, 90, 20_000);
@@ -189,7 +200,11 @@ fn each_likelihood_ratio_averages_to_one_and_keeps_known_means() {
         for (name, truth, (m, se)) in [
             ("E[w]", 1.0, tilted_mean(&law, n, |_, w| w)),
             ("E[w X]", mean_x, tilted_mean(&law, n, |x, w| w * x)),
-            ("E[w e^X]", forward, tilted_mean(&law, n, |x, w| w * x.exp())),
+            (
+                "E[w e^X]",
+                forward,
+                tilted_mean(&law, n, |x, w| w * x.exp()),
+            ),
         ] {
             // (Under the share measure w e^X is the constant e^{(r-q)T}:
             // zero variance, so an allowance for the rounding of the sum of
@@ -244,7 +259,11 @@ fn parity_conversion_is_exact() {
     assert_eq!(c.price.to_bits(), (p.price + intrinsic).to_bits());
     assert_eq!(c.std_error.to_bits(), p.std_error.to_bits());
     assert!(!matches!(p.method, McMethod::Exact));
-    assert!(c.method.as_str().ends_with("+parity"), "{}", c.method.as_str());
+    assert!(
+        c.method.as_str().ends_with("+parity"),
+        "{}",
+        c.method.as_str()
+    );
     assert!(!p.method.as_str().ends_with("+parity"));
 }
 
@@ -256,7 +275,10 @@ fn lattice_rows_that_cannot_pay_are_exact() {
     // by parity (Merton 1976 dynamics; identity of the model).
     let c = merton(Call, 100.0, 130.0, 1.0, 0.03, 0.0, 0.0, 2.0, -0.1, 0.0);
     let m = monte_carlo::price(&c, 1, &cfg(10_000));
-    assert_eq!((m.method, m.price, m.std_error), (McMethod::Exact, 0.0, 0.0));
+    assert_eq!(
+        (m.method, m.price, m.std_error),
+        (McMethod::Exact, 0.0, 0.0)
+    );
     assert_eq!(series_price(&c), 0.0);
     let p = monte_carlo::price(&Contract { kind: Put, ..c }, 1, &cfg(10_000));
     let intrinsic = 130.0 * (-0.03f64).exp() - 100.0;
@@ -303,7 +325,15 @@ fn deep_wing_book_is_the_same_across_threads_order_and_splits() {
     ];
     let run = |rows: &[&str], threads: &str| {
         let out = saltus()
-            .args(["--threads", threads, "crosscheck", "-", "--paths", "20000", "-q"])
+            .args([
+                "--threads",
+                threads,
+                "crosscheck",
+                "-",
+                "--paths",
+                "20000",
+                "-q",
+            ])
             .write_stdin(format!("{header}\n{}\n", rows.join("\n")))
             .output()
             .unwrap();

@@ -25,8 +25,10 @@ mc_stderr, mc_z, fourier_gap, fourier_gap_rel, fourier_error_est, mc_method, mc_
 mc_hits, verdict, status.\n\
 fourier_gap_rel is fourier_gap / price_series (empty when the series price is 0); \
 fourier_error_est is the Fourier engine's own absolute error estimate; mc_method names the \
-Monte Carlo estimator (exact at T = 0, plain, jump-count); mc_paths the paths simulated; mc_ess \
-the effective sample size of the likelihood weights; mc_hits the paths that paid, before weighting.\n\
+Monte Carlo estimator (plain, jump-count, esscher, esscher+jump-count, share-measure, with \
++parity when the out-of-the-money side was simulated; exact or chernoff-bound without simulation; \
+docs/engines.md); mc_paths the paths simulated; mc_ess the effective sample size of the weighted \
+payoffs; mc_hits the paths that paid, counted under the sampling law before weighting.\n\
 verdict is 'agree', 'inconclusive: <why>' (an engine could not resolve the price, e.g. no \
 in-the-money Monte Carlo paths, or the Fourier engine failed: price_fourier and fourier_gap \
 are then empty) or 'disagree: <why>'.\n\

@@ -1,6 +1,9 @@
 //! Monte Carlo engine: exact simulation of the terminal price, with
-//! antithetic variates, a control variate and importance sampling of the
-//! jump count. Shares no code with the series engine.
+//! antithetic variates, a control variate and importance sampling for rare
+//! events (the out-of-the-money side converted by put-call parity, Esscher
+//! tilts of `ln S_T`, the share-measure form, jump-count tilts), one picked
+//! per row by a pilot run ([`price`], rule in `pick`). Shares no code with
+//! the series engine.
 //!
 //! # Simulation
 //! Given the jump count `N`, the log-return over `[0, T]` is exactly normal:
@@ -20,6 +23,18 @@
 //! Only the sampling law changes: the drift keeps the original compensator
 //! `lambda k`, so `E_Q[w X] = E_P[X]` for every payoff `X`. Glasserman (2004),
 //! *Monte Carlo Methods in Financial Engineering*, section 4.6.
+//!
+//! # Rare events (issue 10)
+//! The Esscher tilt and its saddle point live in
+//! [`crate::engines::mc_measure`]; here a `Simulation` draws one payoff
+//! (`Vanilla`, or `Min` = `e^{-rT} min(S_T, K)` for the share-measure form)
+//! under one sampling law (`Law`: tilt, mean jump count, jump-mean shift),
+//! and a `Plan` turns its estimate into the price of a call or a put, which
+//! parity converts to the row. Tilted laws keep the weight in log form
+//! (`lw_n - theta b` per path, one extra `exp`), and a term `w f` is taken as
+//! 0 off the paying region, where a tilted weight may overflow. The pick
+//! rule, the Chernoff bound that skips negligible wings and the exact
+//! lattice rows are described in docs/engines.md.
 //!
 //! # Reproducibility
 //! Work is cut into blocks of [`BLOCK_PAIRS`] antithetic pairs. Block `i`
@@ -1155,9 +1170,8 @@ pub fn price_with(c: &Contract, key: u64, cfg: &McConfig, choice: MethodChoice) 
     let mut plan = match choice {
         MethodChoice::Auto => pick(&otm, key, cfg),
         MethodChoice::JumpCount => jump_count_plan(&otm, choose_intensity(&otm, key, cfg), cfg),
-        MethodChoice::Esscher { gamma } => {
-            esscher_plan(&otm, Tilt::Saddle, gamma, cfg).unwrap_or_else(|| jump_count_plan(&otm, 1.0, cfg))
-        }
+        MethodChoice::Esscher { gamma } => esscher_plan(&otm, Tilt::Saddle, gamma, cfg)
+            .unwrap_or_else(|| jump_count_plan(&otm, 1.0, cfg)),
         MethodChoice::ShareMeasure => {
             share_plan(&otm, cfg).unwrap_or_else(|| jump_count_plan(&otm, 1.0, cfg))
         }
@@ -1352,8 +1366,7 @@ fn esscher_plan(c: &Contract, tilt: Tilt, gamma: f64, cfg: &McConfig) -> Option<
     // The jump-count factor's weights must keep a moderate second moment
     // (as for the untilted pilot's candidates).
     let lam_theta_t = cum.tilted_rate(theta) * c.expiry;
-    if gamma != 1.0 && lam_theta_t * (gamma - 1.0).powi(2) / gamma > MAX_LOG_WEIGHT_SECOND_MOMENT
-    {
+    if gamma != 1.0 && lam_theta_t * (gamma - 1.0).powi(2) / gamma > MAX_LOG_WEIGHT_SECOND_MOMENT {
         return None;
     }
     let law = Law {
@@ -1394,7 +1407,7 @@ fn share_plan(c: &Contract, cfg: &McConfig) -> Option<Plan> {
     let cum = Cumulant::new(c);
     let x0 = (c.strike / c.spot).ln();
     let tm = cum.theta_mean_at(x0)?;
-    if !(tm > 0.0 && tm < 1.0) || !cum.admissible(tm) {
+    if !(tm > 0.0 && tm < 1.0 && cum.admissible(tm)) {
         return None;
     }
     let law = Law {

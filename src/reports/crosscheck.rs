@@ -214,8 +214,7 @@ pub fn mc_verdict(c: &Contract, s: f64, m: &McEstimate, z_max: f64) -> McVerdict
     // (Only an exact zero, or a control that took out all the variance:
     // a tilted estimate of a tiny out-of-the-money value plus a large
     // forward intrinsic has a genuinely tiny standard error.)
-    let degenerate_se =
-        m.std_error == 0.0 || (m.beta != 0.0 && m.std_error <= 1e-9 * s.max(floor));
+    let degenerate_se = m.std_error == 0.0 || (m.beta != 0.0 && m.std_error <= 1e-9 * s.max(floor));
     let simulated = c.expiry > 0.0 && m.paths > 0;
     let needs_forward = simulated && !m.bounded;
     if needs_forward && !m.martingale_z.is_finite() {
