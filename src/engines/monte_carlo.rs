@@ -584,10 +584,8 @@ struct Simulation {
     strike: f64,
     sign: f64,
     piece: Piece,
-    /// Payoff on the paying region: `alpha (S_T - pay_strike) + beta`.
-    alpha: f64,
-    pay_strike: f64,
-    beta: f64,
+    /// `e^{-rT}`.
+    discount: f64,
     /// Esscher tilt (0: the untilted weight below) of the Brownian part, and
     /// of the jump sizes (`theta`, or 0 for a diffusion-only tilt).
     theta: f64,
@@ -674,10 +672,6 @@ impl Simulation {
             .map(|n| (c.spot.ln() + sampler.drift_dt + n as f64 * mu_s).exp())
             .collect();
         let discount = (-c.rate * t).exp();
-        let (alpha, pay_strike, beta) = match piece {
-            Piece::Vanilla => (sign * discount, c.strike, 0.0),
-            Piece::Min => (discount, 0.0, 0.0),
-        };
         // The weighted payoff is bounded when the weight's exponent
         // -theta X does not outgrow the payoff (e^X on the call side, 1 on
         // the put side; both for min(S_T, K)) and the jump-count factor does
@@ -698,9 +692,7 @@ impl Simulation {
             strike: c.strike,
             sign,
             piece,
-            alpha,
-            pay_strike,
-            beta,
+            discount,
             theta: th,
             jump_theta,
             weight_table,
@@ -748,12 +740,13 @@ impl Simulation {
     /// Payoff of the piece at terminal price `st` (0 off the paying region).
     #[inline]
     fn payoff(&self, st: f64) -> f64 {
+        // (Branch-free for the vanilla payoff: the paying side is a coin
+        // flip near the money, and a mispredicted branch costs more than
+        // the max.)
         if self.piece == Piece::Min {
-            self.alpha * st.min(self.strike)
-        } else if self.sign * (st - self.strike) > 0.0 {
-            self.alpha * (st - self.pay_strike) + self.beta
+            self.discount * st.min(self.strike)
         } else {
-            0.0
+            self.discount * (self.sign * (st - self.strike)).max(0.0)
         }
     }
 
@@ -770,12 +763,23 @@ impl Simulation {
 
     /// Simulates `pairs` samples (antithetic pairs or single paths) from `rng`.
     fn run_block<R: Rng>(&self, rng: &mut R, pairs: u64) -> Moments {
+        if self.theta != 0.0 {
+            self.run_block_impl::<true, R>(rng, pairs)
+        } else {
+            self.run_block_impl::<false, R>(rng, pairs)
+        }
+    }
+
+    /// The loop, compiled once for tilted (log weights, terms guarded
+    /// against an overflowing weight off the paying region) and once for
+    /// untilted laws.
+    #[inline(always)]
+    fn run_block_impl<const TILTED: bool, R: Rng>(&self, rng: &mut R, pairs: u64) -> Moments {
         let mut m = Moments::default();
         // Shift references: the first sample of the block.
         let (mut kx, mut kc) = (f64::NAN, f64::NAN);
         let (mut sx, mut sc, mut sxx, mut scc, mut sxc) = (0.0, 0.0, 0.0, 0.0, 0.0);
         let (mut sum_wf2, mut sum_t, mut sum_t2, mut hits) = (0.0, 0.0, 0.0, 0u64);
-        let tilted = self.theta != 0.0;
         for _ in 0..pairs {
             let n = self.sampler.jump_count(rng);
             let z1: f64 = StandardNormal.sample(rng);
@@ -802,7 +806,7 @@ impl Simulation {
             let st = ea * eb;
             let jump_mean_part = nf * self.sampler.sample_mean;
             let j = jump_mean_part + jump_noise;
-            let (w, w_2) = if tilted {
+            let (w, w_2) = if TILTED {
                 let lw = self.log_weight(n);
                 let tb = self.theta * diffusion + self.jump_theta * jump_noise;
                 ((lw - tb).exp(), (lw + tb).exp())
@@ -818,11 +822,11 @@ impl Simulation {
             let f = self.payoff(st);
             // Terms w f, zero off the paying region (where a tilted weight
             // may overflow).
-            let t1 = if f != 0.0 { w * f } else { 0.0 };
+            let t1 = term::<TILTED>(w, f);
             let (x, cv) = if self.antithetic {
                 let st2 = ea / eb;
                 let f2 = self.payoff(st2);
-                let t2 = if f2 != 0.0 { w_2 * f2 } else { 0.0 };
+                let t2 = term::<TILTED>(w_2, f2);
                 sum_wf2 += t1 * f + t2 * f2;
                 sum_t += t1 + t2;
                 sum_t2 += t1 * t1 + t2 * t2;
@@ -888,6 +892,17 @@ impl Simulation {
         let mut rng = ChaCha8Rng::seed_from_u64(key);
         rng.set_stream(stream);
         self.run_block(&mut rng, pairs)
+    }
+}
+
+/// The term `w f`: 0 where `f = 0` under a tilted law (whose weight may
+/// overflow there); a plain product otherwise.
+#[inline(always)]
+fn term<const TILTED: bool>(w: f64, f: f64) -> f64 {
+    if TILTED && f == 0.0 {
+        0.0
+    } else {
+        w * f
     }
 }
 
