@@ -18,6 +18,7 @@ mod greeks_cli;
 mod identities;
 mod implied_vol;
 mod implied_vol_cli;
+mod mc_rare;
 mod monte_carlo;
 #[cfg(target_os = "linux")] // /dev/full, kill(1), ulimit
 mod output_safety_cli;

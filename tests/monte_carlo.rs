@@ -188,10 +188,15 @@ fn importance_sampling_reduces_variance_on_a_crash_put() {
     let auto = monte_carlo::price(&c, 11, &cfg(1 << 20));
     let ratio = (plain.std_error / auto.std_error).powi(2);
     eprintln!(
-        "crash put {exact:.4e}: gamma {}, variance ratio {ratio:.1}, VRF vs plain {:.1}, ESS {:.0}",
-        auto.gamma, auto.variance_reduction, auto.ess
+        "crash put {exact:.4e}: {} gamma {} theta {}, variance ratio {ratio:.1}, VRF vs plain {:.1}, ESS {:.0}",
+        auto.method.as_str(),
+        auto.gamma,
+        auto.theta,
+        auto.variance_reduction,
+        auto.ess
     );
-    assert!(auto.gamma > 1.0);
+    // The pilot picks a change of measure (jump count or Esscher tilt).
+    assert!(auto.gamma > 1.0 || auto.theta != 0.0);
     assert!(ratio > 5.0, "variance ratio {ratio}");
     assert!(auto.variance_reduction > 5.0);
     assert!(((auto.price - exact) / auto.std_error).abs() < 4.0);
@@ -240,4 +245,7 @@ fn value_stability_of_a_fixed_seed() {
     assert_eq!(format!("{:.12}", e.price), PINNED);
 }
 
-const PINNED: &str = "10.607528108200";
+// Changed deliberately (issue 10): the call at K = 100 < forward is now
+// simulated as the out-of-the-money put and converted by parity; was
+// 10.607528108200.
+const PINNED: &str = "10.607528108201";

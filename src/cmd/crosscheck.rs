@@ -27,8 +27,10 @@ mc_stderr, mc_z, fourier_gap, fourier_gap_rel, fourier_error_est, mc_method, mc_
 mc_hits, price_pide, pide_gap, pide_error_est, verdict, status.\n\
 fourier_gap_rel is fourier_gap / price_series (empty when the series price is 0); \
 fourier_error_est is the Fourier engine's own absolute error estimate; mc_method names the \
-Monte Carlo estimator (exact at T = 0, plain, jump-count); mc_paths the paths simulated; mc_ess \
-the effective sample size of the likelihood weights; mc_hits the paths that paid, before weighting.\n\
+Monte Carlo estimator (plain, jump-count, esscher, esscher+jump-count, share-measure, with \
++parity when the out-of-the-money side was simulated; exact or chernoff-bound without simulation; \
+docs/engines.md); mc_paths the paths simulated; mc_ess the effective sample size of the weighted \
+payoffs; mc_hits the paths that paid, counted under the sampling law before weighting.\n\
 price_pide is the European PIDE price (a fourth independent engine, to --pide-tol), pide_gap \
 price_pide - price_series, pide_error_est the PIDE's own error estimate; the PIDE agrees when \
 |pide_gap| <= pide_error_est. Rows outside its reach (lambda T above 50, a standard deviation \

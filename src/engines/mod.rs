@@ -3,6 +3,7 @@
 //! form), [`fourier`] and [`monte_carlo`] (the independent engines).
 
 pub mod fourier;
+pub mod mc_measure;
 pub mod monte_carlo;
 pub mod pide;
 pub mod series;

@@ -13,19 +13,36 @@
 //!   Monte Carlo results are still reported. A lattice law (no diffusion,
 //!   no jump vol), outside the Fourier engine's claim, makes the check
 //!   inconclusive with `fourier not applicable: ...`.
-//! - Monte Carlo agrees when `|z| <= z_max`, `z = (price_mc - price_series) / mc_stderr`.
-//!   When the simulated discounted terminal price misses its known mean by
-//!   more than 5 standard errors (martingale test), the sample is not
-//!   representative (extremely heavy tails) and the check is inconclusive;
-//!   so it is when that z-score is not a finite number (every simulated
-//!   discounted terminal price alike but off its mean, or the simulated
-//!   prices overflow).
-//!   With fewer than [`MIN_MC_HITS`] in-the-money paths, or an effective
-//!   sample size of the weights below [`MIN_MC_ESS`], the standard error
-//!   itself is not trustworthy and the check is inconclusive. A degenerate
-//!   standard error (the control variate replicates every simulated payoff,
-//!   e.g. an option that was exercised on every path) agrees within the
-//!   absolute floor and is inconclusive otherwise.
+//! - Monte Carlo agrees when `|z| <= z_max`,
+//!   `z = (price_mc - price_series) / sqrt(mc_stderr^2 + rounding^2)` with
+//!   `rounding` [`ROUNDING_ULPS`] units in the last place of the two prices.
+//!   The engine simulates the out-of-the-money side (deep in-the-money rows
+//!   by put-call parity) under the change of measure its pilot picked
+//!   (`mc_method`, docs/engines.md). Its standard error is trusted when:
+//!   - at least [`MIN_MC_HITS`] simulated paths paid, counted under the
+//!     sampling law (a tilt makes them plentiful), and the effective sample
+//!     size of the weighted payoffs `(sum w f)^2 / sum (w f)^2` is at least
+//!     [`MIN_MC_ESS`] (no handful of heavy paths carries the estimate);
+//!   - for an estimator whose weighted payoff is not bounded by construction
+//!     (an untilted call side, a jump-count factor below 1, a shifted jump
+//!     mean), the simulated discounted terminal price also meets its known
+//!     mean within 5 standard errors (martingale test): otherwise the sample
+//!     misses the paths that carry the forward (extremely heavy tails), and
+//!     so it is when that z-score is not a finite number (every simulated
+//!     discounted terminal price alike but off its mean, or the simulated
+//!     prices overflow). A bounded estimator needs no such test: its sample
+//!     variance is an honest error bar whatever the tails of `S_T`.
+//!
+//!   Otherwise the check is inconclusive with the reason. A degenerate
+//!   standard error (every sampled term alike: a law with one possible
+//!   outcome on the paying side, or a control that replicates every
+//!   simulated payoff) agrees within the absolute floor and is inconclusive
+//!   otherwise. Rows priced without simulation (`mc_method` `exact`: expiry
+//!   0, or a lattice law whose support cannot reach the strike;
+//!   `chernoff-bound`: a rigorous bound puts the out-of-the-money value
+//!   below 1e-15 of spot, and `mc_stderr` is that bound) agree within
+//!   `max(floor, 1e-10 x price, z_max x bound)` and disagree otherwise; they
+//!   have no z-score.
 //! - The PIDE (European exercise, [`CheckConfig::pide`]) agrees when
 //!   `|price_pide - price_series| <= pide_error_est + ABS_FLOOR * spot`:
 //!   the gap is judged against the PIDE's own error estimate. A row outside
@@ -50,10 +67,14 @@ use crate::engines::series;
 use crate::greeks::american::pide_reach;
 use crate::model::Contract;
 
-/// Smallest number of in-the-money Monte Carlo paths for a verdict.
+/// Smallest number of paying Monte Carlo paths, counted under the sampling
+/// law before weighting, for a verdict (common practice: a sample standard
+/// error from fewer paying paths is itself too noisy to judge by).
 pub const MIN_MC_HITS: u64 = 100;
-/// Smallest effective sample size of the likelihood weights for a verdict.
-pub const MIN_MC_ESS: f64 = 1000.0;
+/// Smallest effective sample size of the weighted payoffs for a verdict.
+pub const MIN_MC_ESS: f64 = monte_carlo::MIN_ESS;
+/// Units in the last place of the two prices counted in the z-score's scale.
+pub const ROUNDING_ULPS: f64 = 4.0;
 /// Absolute floor of every comparison, as a fraction of spot (rounding level).
 pub const ABS_FLOOR: f64 = 1e-12;
 /// Default PIDE tolerance of a cross-check, as a fraction of spot: ten
@@ -212,56 +233,12 @@ pub fn check(c: &Contract, key: u64, cfg: &CheckConfig) -> Result<RowCheck, Chec
             Some(p)
         }
     };
-    let diff = m.price - s;
-    // A z-score that overflows (a standard error far below the difference)
-    // is not reported as a number.
-    let mc_z = if m.std_error > 0.0 {
-        Some(diff / m.std_error).filter(|z| z.is_finite())
-    } else {
-        None
-    };
-    // A relative standard error below 1e-9 with a million paths would need a
-    // variance reduction of 1e18: only a control that replicates every
-    // simulated payoff does that.
-    let degenerate_se = m.std_error <= 1e-9 * s.max(floor);
-    if c.expiry > 0.0 && !m.martingale_z.is_finite() {
-        // The z-score itself is undefined: say why instead of printing it.
-        unsure.push(
-            if m.martingale_z.is_nan() {
-                "mc martingale test undefined (the simulated terminal prices overflow)"
-            } else {
-                "mc sample misses the paths that carry the forward (martingale test: \
-                 every simulated terminal price alike, off its known mean)"
-            }
-            .to_string(),
-        );
-    } else if c.expiry > 0.0 && m.martingale_z.abs() > 5.0 {
-        unsure.push(format!(
-            "mc sample misses the paths that carry the forward (martingale test z = {:.1})",
-            m.martingale_z
-        ));
-    } else if c.expiry > 0.0 && m.hits < MIN_MC_HITS {
-        unsure.push(format!("mc saw {} in-the-money paths", m.hits));
-    } else if c.expiry > 0.0 && m.ess < MIN_MC_ESS {
-        unsure.push(format!("mc effective sample size {:.0}", m.ess));
-    } else if degenerate_se {
-        // The control replicated every simulated payoff: the paths that
-        // would differ were never drawn, so the error bar says nothing.
-        if diff.abs() > floor.max(1e-10 * s) {
-            unsure.push(format!(
-                "mc standard error {:.1e} is degenerate (every path replicated by the control)",
-                m.std_error
-            ));
-        }
-    } else if let Some(z) = mc_z {
-        if z.abs() > cfg.z_max && diff.abs() > floor {
-            fails.push(format!("mc z = {z:.2} beyond {}", cfg.z_max));
-        }
-    } else if m.std_error > 0.0 && diff.abs() > floor {
-        fails.push(format!(
-            "mc differs by {diff:.3e} with a standard error of {:.1e} (z beyond double range)",
-            m.std_error
-        ));
+    let mv = mc_verdict(c, s, &m, cfg.z_max);
+    let mc_z = mv.z;
+    match mv.outcome {
+        Outcome::Disagree => fails.extend(mv.reason),
+        Outcome::Inconclusive => unsure.extend(mv.reason),
+        Outcome::Agree => {}
     }
     let (outcome, verdict) = if !fails.is_empty() {
         (Outcome::Disagree, format!("disagree: {}", fails.join("; ")))
@@ -283,6 +260,121 @@ pub fn check(c: &Contract, key: u64, cfg: &CheckConfig) -> Result<RowCheck, Chec
         outcome,
         verdict,
     })
+}
+
+/// The Monte Carlo side of a row's verdict.
+#[derive(Debug, Clone, PartialEq)]
+pub struct McVerdict {
+    /// Agree, inconclusive or disagree.
+    pub outcome: Outcome,
+    /// Why, when not `Agree`.
+    pub reason: Option<String>,
+    /// The z-score, when defined (simulated rows only).
+    pub z: Option<f64>,
+}
+
+/// Judges a Monte Carlo estimate `m` of contract `c` against the series
+/// price `s` by the rules in the module doc.
+pub fn mc_verdict(c: &Contract, s: f64, m: &McEstimate, z_max: f64) -> McVerdict {
+    let floor = ABS_FLOOR * c.spot;
+    let mut fails: Option<String> = None;
+    let mut unsure: Option<String> = None;
+    let diff = m.price - s;
+    // A z-score that overflows (a standard error far below the difference)
+    // is not reported as a number.
+    // The z-score's scale is the standard error and the rounding of the two
+    // prices (a few units in their last place): a tiny out-of-the-money
+    // estimate plus a large parity term is not known better than that.
+    let rounding = ROUNDING_ULPS * f64::EPSILON * (s.abs() + m.price.abs());
+    let mc_z = if m.std_error > 0.0 && m.paths > 0 {
+        Some(diff / m.std_error.hypot(rounding)).filter(|z| z.is_finite())
+    } else {
+        None
+    };
+    // A relative standard error below 1e-9 with a million paths would need a
+    // variance reduction of 1e18: only a control that replicates every
+    // simulated payoff does that.
+    // (Only an exact zero, or a control that took out all the variance:
+    // a tilted estimate of a tiny out-of-the-money value plus a large
+    // forward intrinsic has a genuinely tiny standard error.)
+    let degenerate_se = m.std_error == 0.0 || (m.beta != 0.0 && m.std_error <= 1e-9 * s.max(floor));
+    let simulated = c.expiry > 0.0 && m.paths > 0;
+    let needs_forward = simulated && !m.bounded;
+    if needs_forward && !m.martingale_z.is_finite() {
+        // The z-score itself is undefined: say why instead of printing it.
+        unsure = Some(
+            if m.martingale_z.is_nan() {
+                "mc martingale test undefined (the simulated terminal prices overflow)"
+            } else {
+                "mc sample misses the paths that carry the forward (martingale test: \
+                 every simulated terminal price alike, off its known mean)"
+            }
+            .to_string(),
+        );
+    } else if needs_forward && m.martingale_z.abs() > 5.0 {
+        unsure = Some(format!(
+            "mc sample misses the paths that carry the forward (martingale test z = {:.1})",
+            m.martingale_z
+        ));
+    } else if simulated && m.hits < MIN_MC_HITS {
+        unsure = Some(format!(
+            "mc saw {} paying paths under its sampling law ({})",
+            m.hits,
+            m.method.as_str()
+        ));
+    } else if simulated && m.misses < MIN_MC_HITS {
+        unsure = Some(format!(
+            "mc saw {} paths on the non-paying side of the strike ({}): the other side's \
+             rare paths are not represented",
+            m.misses,
+            m.method.as_str()
+        ));
+    } else if simulated && m.ess < MIN_MC_ESS {
+        unsure = Some(format!(
+            "mc effective sample size {:.0} of the weighted payoffs ({})",
+            m.ess,
+            m.method.as_str()
+        ));
+    } else if !simulated {
+        // Exact (expiry 0, or a side that cannot pay) or a Chernoff bound
+        // (std_error is the bound): within the floor or the bound.
+        let tol = floor.max(1e-10 * s).max(z_max * m.std_error);
+        if diff.abs() > tol {
+            fails = Some(format!(
+                "mc {} value differs by {diff:.3e} (tolerance {tol:.1e})",
+                m.method.as_str()
+            ));
+        }
+    } else if degenerate_se {
+        // The control replicated every simulated payoff: the paths that
+        // would differ were never drawn, so the error bar says nothing.
+        if diff.abs() > floor.max(1e-10 * s) {
+            unsure = Some(format!(
+                "mc standard error {:.1e} is degenerate (every sampled payoff alike, or \
+                 replicated by the control)",
+                m.std_error
+            ));
+        }
+    } else if let Some(z) = mc_z {
+        if z.abs() > z_max && diff.abs() > floor {
+            fails = Some(format!("mc z = {z:.2} beyond {}", z_max));
+        }
+    } else if m.std_error > 0.0 && diff.abs() > floor {
+        fails = Some(format!(
+            "mc differs by {diff:.3e} with a standard error of {:.1e} (z beyond double range)",
+            m.std_error
+        ));
+    }
+    let (outcome, reason) = match (fails, unsure) {
+        (Some(f), _) => (Outcome::Disagree, Some(f)),
+        (None, Some(u)) => (Outcome::Inconclusive, Some(u)),
+        (None, None) => (Outcome::Agree, None),
+    };
+    McVerdict {
+        outcome,
+        reason,
+        z: mc_z,
+    }
 }
 
 /// What the cross-check found for an American row.

@@ -13,12 +13,12 @@
 //! charts are drawn by `plotters` here, in the palette and style of the
 //! risk page ([`super::html`]).
 
+use super::chart::LINE_COLOURS as PALETTE;
 use super::crosscheck::{Outcome, ABS_FLOOR};
 use super::crosscheck_summary::{
     CheckAccumulator, GapBin, COVERAGE_EXPIRY, COVERAGE_MONEYNESS, EXPIRY_BINS, KEEP_FLAGGED,
     MONEYNESS_BINS, Z_BIN, Z_RANGE,
 };
-use super::chart::LINE_COLOURS as PALETTE;
 use super::html::esc;
 use crate::normal::{norm_cdf, norm_pdf};
 use plotters::prelude::*;
