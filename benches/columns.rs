@@ -44,6 +44,8 @@ fn bench(c: &mut Criterion) {
         multiplier: None,
         valuation_date: None,
         default_valuation: None,
+        exercise: None,
+        pide: Default::default(),
     };
     let mut g = c.benchmark_group("columns");
     g.sample_size(10);

@@ -68,7 +68,7 @@ _REQUIRED = [
     "jump_mean",
     "jump_vol",
 ]
-_OPTIONAL = ["div_yield", "quantity", "multiplier", "valuation_date"]
+_OPTIONAL = ["div_yield", "quantity", "multiplier", "valuation_date", "exercise"]
 
 
 class BookError(ValueError):
@@ -232,7 +232,8 @@ def _assemble(frame: Any, kind: str, results: Dict[str, Any], order: List[str]) 
     return out
 
 
-def price(frame: Any, *, implied_vol: bool = False, valuation_date: Any = None) -> Any:
+def price(frame: Any, *, implied_vol: bool = False, valuation_date: Any = None,
+          pide_tol: Optional[float] = None) -> Any:
     """Prices every row of a book with the Merton series and all analytic
     Greeks (raw units: vega per 1.00 of vol, theta per year).
 
@@ -255,6 +256,13 @@ def price(frame: Any, *, implied_vol: bool = False, valuation_date: Any = None) 
         an ``expiry_years`` column placed before the results whenever a
         valuation date can apply (this argument or a ``valuation_date``
         column), exactly as ``saltus price --valuation-date`` writes it.
+    pide_tol:
+        Tolerance of the PIDE engine for American rows (an ``exercise``
+        column holding ``american``), an absolute price error as a fraction
+        of spot (default 1e-6, as ``saltus price --pide-tol``). With an
+        ``exercise`` column the results carry ``early_exercise_premium`` and
+        ``error_estimate`` before ``terms``, as on the command line. An
+        American row costs about thirteen PIDE solutions (docs/pide.md).
 
     Returns
     -------
@@ -276,6 +284,8 @@ def price(frame: Any, *, implied_vol: bool = False, valuation_date: Any = None) 
     args = {w: _column_arg(cols[req[w]], w) for w in _REQUIRED[1:]}
     for w in _OPTIONAL:
         args[w] = _column_arg(cols[opt[w]], w) if w in opt else None
+    if pide_tol is not None:
+        args["pide_tol"] = float(pide_tol)
     if valuation_date is not None:
         args["default_valuation"] = (valuation_date if isinstance(valuation_date, str)
                                      else _date_text(valuation_date, "valuation_date"))
@@ -291,7 +301,9 @@ def price(frame: Any, *, implied_vol: bool = False, valuation_date: Any = None) 
     except ValueError as e:
         raise BookError(str(e)) from None
     order = (["expiry_years"] if "expiry_years" in res else []) + RESULT_COLUMNS[:10] \
-        + (["implied_vol"] if implied_vol else []) + ["terms", "status"]
+        + (["implied_vol"] if implied_vol else []) \
+        + (["early_exercise_premium", "error_estimate"] if "error_estimate" in res else []) \
+        + ["terms", "status"]
     return _assemble(frame, kind, res, order)
 
 

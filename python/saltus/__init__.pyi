@@ -1,6 +1,6 @@
 """Type hints of the saltus package (see the module docstring of saltus/__init__.py)."""
 
-from typing import Any, List, Tuple
+from typing import Any, List, Optional, Tuple
 
 import numpy as np
 import numpy.typing as npt
@@ -10,7 +10,8 @@ RESULT_COLUMNS: List[str]
 
 class BookError(ValueError): ...
 
-def price(frame: Any, *, implied_vol: bool = ...) -> Any:
+def price(frame: Any, *, implied_vol: bool = ..., valuation_date: Any = ...,
+          pide_tol: Optional[float] = ...) -> Any:
     """Prices every row of a book (pandas DataFrame, dict of arrays or pyarrow
     Table); returns the same kind of object with the result columns appended."""
 

@@ -19,6 +19,10 @@ def price_columns(
     div_yield: Any = None,
     quantity: Any = None,
     multiplier: Any = None,
+    valuation_date: Any = None,
+    default_valuation: Optional[str] = None,
+    exercise: Any = None,
+    pide_tol: Optional[float] = None,
     implied_vol: bool = False,
 ) -> Dict[str, Any]: ...
 def implied_vol(

@@ -60,7 +60,7 @@ fn opt_column<'a>(c: &'a Option<ColArg<'_>>) -> PyResult<Option<Column<'a>>> {
 #[pyfunction(name = "price_columns")]
 #[pyo3(signature = (kind, spot, strike, expiry, rate, vol, jump_rate, jump_mean, jump_vol,
     div_yield=None, quantity=None, multiplier=None, valuation_date=None,
-    default_valuation=None, implied_vol=false))]
+    default_valuation=None, exercise=None, pide_tol=None, implied_vol=false))]
 #[allow(clippy::too_many_arguments)]
 fn price_columns_py<'py>(
     py: Python<'py>,
@@ -78,8 +78,20 @@ fn price_columns_py<'py>(
     multiplier: Option<ColArg<'py>>,
     valuation_date: Option<ColArg<'py>>,
     default_valuation: Option<String>,
+    exercise: Option<ColArg<'py>>,
+    pide_tol: Option<f64>,
     implied_vol: bool,
 ) -> PyResult<Bound<'py, PyDict>> {
+    let mut pide = saltus::engines::pide::PideConfig::default();
+    if let Some(t) = pide_tol {
+        // The command line's accepted range (`--pide-tol`).
+        if !(t.is_finite() && (1e-9..=1e-2).contains(&t)) {
+            return Err(PyValueError::new_err(format!(
+                "pide_tol must be between 1e-9 and 1e-2 (a fraction of spot), got {t}"
+            )));
+        }
+        pide.tol_spot = t;
+    }
     let default_valuation = match default_valuation {
         None => None,
         Some(t) => Some(
@@ -102,6 +114,8 @@ fn price_columns_py<'py>(
         multiplier: opt_column(&multiplier)?,
         valuation_date: opt_column(&valuation_date)?,
         default_valuation,
+        exercise: opt_column(&exercise)?,
+        pide,
     };
     let out = py
         .detach(|| price_columns(&book, implied_vol))
@@ -115,6 +129,10 @@ fn price_columns_py<'py>(
     }
     if let Some(iv) = out.implied_vol {
         d.set_item("implied_vol", iv.into_pyarray(py))?;
+    }
+    if let Some((premium, estimate)) = out.exercise {
+        d.set_item("early_exercise_premium", premium.into_pyarray(py))?;
+        d.set_item("error_estimate", estimate.into_pyarray(py))?;
     }
     d.set_item("terms", out.terms.into_pyarray(py))?;
     d.set_item("status", status_list(py, out.status)?)?;

@@ -225,3 +225,32 @@ def test_dated_expiries_match_the_cli(cli, tmp_path):
     np.testing.assert_array_equal(out["price"].to_numpy(), text["price"][:2].to_numpy())
     with pytest.raises(saltus.BookError, match="time of day"):
         saltus.price(typed.assign(expiry=pd.to_datetime(["2027-03-19 10:00", "2028-02-29 00:00"])))
+
+
+def test_american_rows_match_the_cli(cli, tmp_path):
+    """An `exercise` column: American rows by the PIDE, with the premium and
+    the error estimate, the same digits as `saltus price` (source: the
+    command line); the premium is never negative and a bad style is a row
+    error with the CLI's words."""
+    header = ["id", "kind", "exercise", "spot", "strike", "expiry", "rate", "div_yield", "vol",
+              "jump_rate", "jump_mean", "jump_vol"]
+    rows = [
+        ["A1", "put", "american", "100", "105", "0.5", "0.05", "0", "0.25", "0.2", "-0.2", "0.1"],
+        ["A2", "call", "European", "100", "95", "0.5", "0.05", "0", "0.25", "0.2", "-0.2", "0.1"],
+        ["A3", "call", "", "100", "95", "0.5", "0.05", "0", "0.25", "0.2", "-0.2", "0.1"],
+        ["A4", "put", "bermudan", "100", "95", "0.5", "0.05", "0", "0.25", "0.2", "-0.2", "0.1"],
+    ]
+    book = write_csv(tmp_path / "am.csv", header, rows)
+    h, got = run_cli(cli, ["price", str(book), "--pide-tol", "1e-5"], tmp_path)
+    out = saltus.price(pd.read_csv(book, dtype=str, keep_default_na=False), pide_tol=1e-5)
+    assert list(out.columns) == h
+    cols = GREEKS + ["early_exercise_premium", "error_estimate", "terms"]
+    for i, r in enumerate(got):
+        rec = dict(zip(h, r))
+        assert out["status"][i] == rec["status"].replace(f"line {i + 2}:", f"row {i}:")
+        for c in cols:
+            assert same_float(rec[c], out[c][i]), (i, c, rec[c], out[c][i])
+    assert out["early_exercise_premium"][0] > 0 and out["early_exercise_premium"][1] == 0
+    assert out["status"][3] == "error: row 3: exercise 'bermudan' is not european or american"
+    with pytest.raises(saltus.BookError, match="pide_tol"):
+        saltus.price(pd.read_csv(book, dtype=str, keep_default_na=False), pide_tol=0.5)

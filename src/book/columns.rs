@@ -20,7 +20,9 @@
 
 use super::reader::{general_number, plain_decimal};
 use super::writer::non_finite_message;
+use crate::engines::pide::{Exercise, PideConfig};
 use crate::engines::series;
+use crate::greeks::american;
 use crate::greeks::RAW_COLUMNS;
 use crate::market::dates::{self, Date};
 use crate::market::implied_vol::implied_vol;
@@ -144,6 +146,12 @@ pub struct ColumnBook<'a> {
     pub valuation_date: Option<Column<'a>>,
     /// The valuation date of rows without their own.
     pub default_valuation: Option<Date>,
+    /// `european` (default, also empty) or `american`, any case (text).
+    /// With this column the results carry `early_exercise_premium` and
+    /// `error_estimate`, as `saltus price` writes them.
+    pub exercise: Option<Column<'a>>,
+    /// The PIDE's tolerance for American rows (`--pide-tol`).
+    pub pide: PideConfig,
 }
 
 /// Why a column book cannot be priced at all.
@@ -196,6 +204,7 @@ impl<'a> ColumnBook<'a> {
             ("quantity", &self.quantity),
             ("multiplier", &self.multiplier),
             ("valuation_date", &self.valuation_date),
+            ("exercise", &self.exercise),
         ] {
             if let Some(c) = c {
                 v.push((name, *c));
@@ -253,9 +262,41 @@ impl<'a> ColumnBook<'a> {
         dates::dated_expiry("expiry", &field, valuation)
     }
 
+    /// Row `i`'s exercise style (the CSV reader's rule and message).
+    fn exercise_of(&self, i: usize) -> Result<Exercise, String> {
+        let Some(col) = &self.exercise else {
+            return Ok(Exercise::European);
+        };
+        let t = match (col, col.text(i)) {
+            (Column::Numbers(v), _) if !v[i].is_nan() => {
+                return Err(format!(
+                    "exercise '{}' is not european or american",
+                    Short(v[i])
+                ))
+            }
+            (_, None) => return Ok(Exercise::European),
+            (_, Some(t)) => String::from_utf8_lossy(t),
+        };
+        if t.eq_ignore_ascii_case("european") {
+            Ok(Exercise::European)
+        } else if t.eq_ignore_ascii_case("american") {
+            Ok(Exercise::American)
+        } else {
+            Err(format!(
+                "exercise '{}' is not european or american",
+                t.escape_debug()
+            ))
+        }
+    }
+
     /// Row `i` as a validated contract, or the message of its first problem
     /// (the same words the CSV reader uses, without the line).
     pub fn contract(&self, i: usize) -> Result<Contract, String> {
+        self.row(i).map(|(c, _)| c)
+    }
+
+    /// Row `i` as a validated contract and its exercise style.
+    pub fn row(&self, i: usize) -> Result<(Contract, Exercise), String> {
         let kind = match (self.kind, self.kind.text(i)) {
             (Column::Numbers(v), _) if !v[i].is_nan() => {
                 return Err(format!("kind '{}' is not call or put", Short(v[i])))
@@ -267,6 +308,7 @@ impl<'a> ColumnBook<'a> {
                     .map_err(|()| format!("kind '{}' is not call or put", t.escape_debug()))?
             }
         };
+        let exercise = self.exercise_of(i)?;
         let spot = self.spot.required(i, "spot")?;
         let strike = self.strike.required(i, "strike")?;
         let expiry = self.expiry_years(i)?;
@@ -278,7 +320,7 @@ impl<'a> ColumnBook<'a> {
         let div_yield = optional(&self.div_yield, i, "div_yield", 0.0)?;
         optional(&self.quantity, i, "quantity", 1.0)?;
         optional(&self.multiplier, i, "multiplier", 1.0)?;
-        Contract::new(
+        let c = Contract::new(
             kind,
             spot,
             strike,
@@ -292,7 +334,8 @@ impl<'a> ColumnBook<'a> {
                 vol: jump_vol,
             },
         )
-        .map_err(|e| e.to_string())
+        .map_err(|e| e.to_string())?;
+        Ok((c, exercise))
     }
 }
 
@@ -307,6 +350,10 @@ pub struct PricedColumns {
     /// `expiry_years`, the year fraction used, when the book is dated
     /// ([`ColumnBook::dated`]; NaN on a failed row).
     pub expiry_years: Option<Vec<f64>>,
+    /// `early_exercise_premium` and `error_estimate`, when the book has an
+    /// `exercise` column: American minus European and the PIDE's estimate on
+    /// American rows; 0 and the series truncation bound on European rows.
+    pub exercise: Option<(Vec<f64>, Vec<f64>)>,
     /// Series terms (NaN on a failed row).
     pub terms: Vec<f64>,
     /// `ok`, `warning: row N: ...` or `error: row N: ...`.
@@ -315,6 +362,8 @@ pub struct PricedColumns {
 
 /// Outcome of one row: values, implied vol, terms, status.
 struct RowOut {
+    premium: f64,
+    error_estimate: f64,
     expiry_years: f64,
     values: [f64; 10],
     implied_vol: f64,
@@ -324,6 +373,8 @@ struct RowOut {
 
 fn failed(i: usize, message: &str) -> RowOut {
     RowOut {
+        premium: f64::NAN,
+        error_estimate: f64::NAN,
         expiry_years: f64::NAN,
         values: [f64::NAN; 10],
         implied_vol: f64::NAN,
@@ -332,9 +383,39 @@ fn failed(i: usize, message: &str) -> RowOut {
     }
 }
 
+/// An American row: the PIDE's price and Greeks, as `saltus price` writes them.
+fn american_row(book: &ColumnBook<'_>, c: &Contract, i: usize, with_iv: bool) -> RowOut {
+    let a = match american::price(c, &book.pide) {
+        Ok(a) => a,
+        Err(m) => return failed(i, &m),
+    };
+    let values = a.greeks.headline();
+    if let Some((j, v)) = values.iter().enumerate().find(|(_, v)| !v.is_finite()) {
+        return failed(i, &non_finite_message(RAW_COLUMNS[j], *v));
+    }
+    let status = if with_iv {
+        format!(
+            "warning: row {i}: implied_vol: not defined for American exercise (the \
+             Black-Scholes inversion is European)"
+        )
+    } else {
+        "ok".to_string()
+    };
+    RowOut {
+        premium: a.early_exercise_premium,
+        error_estimate: a.error_estimate,
+        expiry_years: c.expiry,
+        values,
+        implied_vol: f64::NAN,
+        terms: f64::NAN,
+        status,
+    }
+}
+
 fn price_row(book: &ColumnBook<'_>, i: usize, with_iv: bool) -> RowOut {
-    let c = match book.contract(i) {
-        Ok(c) => c,
+    let c = match book.row(i) {
+        Ok((c, Exercise::American)) => return american_row(book, &c, i, with_iv),
+        Ok((c, Exercise::European)) => c,
         Err(m) => return failed(i, &m),
     };
     let r = match series::price(&c) {
@@ -362,6 +443,8 @@ fn price_row(book: &ColumnBook<'_>, i: usize, with_iv: bool) -> RowOut {
         }
     }
     RowOut {
+        premium: 0.0,
+        error_estimate: r.truncation_bound,
         expiry_years: c.expiry,
         values,
         implied_vol: iv,
@@ -395,6 +478,9 @@ pub fn price_columns(
     let mut iv = Vec::with_capacity(if with_implied_vol { n } else { 0 });
     let dated = book.dated();
     let mut years = Vec::with_capacity(if dated { n } else { 0 });
+    let with_exercise = book.exercise.is_some();
+    let mut premium = Vec::with_capacity(if with_exercise { n } else { 0 });
+    let mut estimate = Vec::with_capacity(if with_exercise { n } else { 0 });
     let mut terms = Vec::with_capacity(n);
     let mut status = Vec::with_capacity(n);
     for row in chunks.into_iter().flatten() {
@@ -407,6 +493,10 @@ pub fn price_columns(
         if dated {
             years.push(row.expiry_years);
         }
+        if with_exercise {
+            premium.push(row.premium);
+            estimate.push(row.error_estimate);
+        }
         terms.push(row.terms);
         status.push(row.status);
     }
@@ -414,6 +504,7 @@ pub fn price_columns(
         values,
         implied_vol: with_implied_vol.then_some(iv),
         expiry_years: dated.then_some(years),
+        exercise: with_exercise.then_some((premium, estimate)),
         terms,
         status,
     })
@@ -455,6 +546,8 @@ mod tests {
             multiplier: None,
             valuation_date: None,
             default_valuation: None,
+            exercise: None,
+            pide: PideConfig::default(),
         };
         let out = price_columns(&book, false).unwrap();
         assert_eq!(out.status[0], "ok");
@@ -493,6 +586,8 @@ mod tests {
             multiplier: None,
             valuation_date: None,
             default_valuation: None,
+            exercise: None,
+            pide: PideConfig::default(),
         };
         let out = price_columns(&book, false).unwrap();
         assert_eq!(out.status[0], "error: row 0: rate is missing");
