@@ -17,7 +17,7 @@ fn pide(c: &saltus::model::Contract, ex: Exercise) -> pide::PideResult {
 fn european_pide_matches_the_series_within_its_own_error_estimate() {
     // The estimate must cover the true error, and the tolerance (1e-6 of
     // spot) must be met. lambda T from 0 to 6.
-    let mut worst_ratio = 0.0f64;
+    let (mut worst_ratio, mut worst_row) = (0.0f64, String::new());
     for kind in [Call, Put] {
         for &(k, t) in &[(100.0, 0.1), (85.0, 0.5), (115.0, 1.5)] {
             for &(lam, mu, dl) in &[(0.0, 0.0, 0.0), (0.3, -0.25, 0.2), (2.0, 0.05, 0.1)] {
@@ -25,7 +25,13 @@ fn european_pide_matches_the_series_within_its_own_error_estimate() {
                 let s = series::price(&c).unwrap().greeks;
                 let p = pide(&c, Exercise::European);
                 let err = (p.price - s.price).abs();
-                worst_ratio = worst_ratio.max(err / p.error_estimate);
+                if err / p.error_estimate > worst_ratio {
+                    worst_ratio = err / p.error_estimate;
+                    worst_row = format!(
+                        "{kind:?} K={k} T={t} lam={lam} (levels {}, extrapolated {})",
+                        p.levels, p.extrapolated
+                    );
+                }
                 assert!(
                     err <= p.error_estimate,
                     "{kind:?} K={k} T={t} lam={lam}: pide {} series {} (error {err:.2e} > estimate {:.2e})",
@@ -61,7 +67,7 @@ fn european_pide_matches_the_series_within_its_own_error_estimate() {
             }
         }
     }
-    eprintln!("pide european: worst true error / estimate = {worst_ratio:.2}");
+    eprintln!("pide european: worst true error / estimate = {worst_ratio:.2} at {worst_row}");
 }
 
 #[test]
@@ -97,8 +103,13 @@ fn early_exercise_identities_and_bounds() {
     // Merton (1973): no early exercise of a call without dividends at r >= 0.
     let c = merton(Call, 100.0, 95.0, 1.0, 0.04, 0.0, 0.2, 0.5, -0.2, 0.15);
     let (am, eu) = (pide(&c, Exercise::American), pide(&c, Exercise::European));
+    // Equal up to the fixed-point iteration of the jump term, whose error
+    // each solve keeps below FIXED_POINT_SHARE of the tolerance (the two
+    // exercise styles may stop their iterations at different passes); a
+    // wrongly active penalty would show at the discretisation level (1e-5).
+    let budget = 2.0 * pide::FIXED_POINT_SHARE * pide::DEFAULT_TOL_SPOT * c.spot;
     assert!(
-        (am.price - eu.price).abs() <= 1e-12 * eu.price,
+        (am.price - eu.price).abs() <= budget,
         "{} vs {}",
         am.price,
         eu.price

@@ -14,7 +14,8 @@
 //! asymptotic value the caller supplies (the grid is extended by the
 //! kernel's reach on each side, so nothing wraps around); the extended
 //! array is correlated with the kernel by a real FFT (`realfft`) of a
-//! power-of-two size at least as long as the extended array, so the
+//! size at least as long as the extended array (an even length with no
+//! prime factor above 5, [`fft_size`]), so the
 //! circular convolution equals the linear one at every index that is read.
 //! Short kernels (at most [`DIRECT_MAX_TAPS`] offsets) are summed directly.
 //!
@@ -126,10 +127,31 @@ impl JumpOperator {
     }
 }
 
+/// The smallest even length `>= len` with no prime factor above 5 (the
+/// FFT is as fast per point at such lengths, and the padding is at most a
+/// few per cent instead of up to half for a power of two).
+pub fn fft_size(len: usize) -> usize {
+    let mut best = len.max(2).next_power_of_two();
+    let mut p5 = 2usize;
+    while p5 < best {
+        let mut p35 = p5;
+        while p35 < best {
+            let mut m = p35;
+            while m < len {
+                m *= 2;
+            }
+            best = best.min(m);
+            p35 *= 3;
+        }
+        p5 *= 5;
+    }
+    best
+}
+
 impl FftParts {
     fn new(weights: &[f64], n: usize) -> Self {
         let taps = weights.len();
-        let size = (n + taps - 1).next_power_of_two();
+        let size = fft_size(n + taps - 1);
         let mut planner = RealFftPlanner::<f64>::new();
         let forward = planner.plan_fft_forward(size);
         let inverse = planner.plan_fft_inverse(size);
@@ -169,7 +191,7 @@ impl FftParts {
         self.inverse
             .process_with_scratch(&mut self.spec, &mut self.buf, &mut self.scratch_i)
             .expect("FFT sizes are fixed at plan time");
-        debug_assert!(self.size >= ext.len());
+        debug_assert!(self.size >= ext.len() && self.size % 2 == 0);
         out.copy_from_slice(&self.buf[taps - 1..taps - 1 + out.len()]);
     }
 }
@@ -195,6 +217,30 @@ mod tests {
         // kappa_h is within O(h^2) of exp(mu + d^2/2) - 1 (identity of the law).
         let k = (mu + 0.5 * d * d).exp_m1();
         assert!((op.kappa_h - k).abs() < h * h, "{} vs {k}", op.kappa_h);
+    }
+
+    #[test]
+    fn fft_sizes_are_short_even_5_smooth_lengths() {
+        for len in [1usize, 2, 3, 7, 100, 1025, 4937, 16385] {
+            let s = fft_size(len);
+            let mut m = s / 2;
+            for p in [2, 3, 5] {
+                while m % p == 0 {
+                    m /= p;
+                }
+            }
+            assert!(s >= len && s % 2 == 0 && m == 1, "{len} -> {s}");
+            // No smaller even 5-smooth length fits (checked by brute force).
+            let smooth = |mut x: usize| {
+                for p in [2, 3, 5] {
+                    while x % p == 0 {
+                        x /= p;
+                    }
+                }
+                x == 1
+            };
+            assert!((len..s).all(|x| x % 2 == 1 || !smooth(x)), "{len} -> {s}");
+        }
     }
 
     #[test]
