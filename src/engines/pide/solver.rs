@@ -30,7 +30,7 @@
 //! in for nodes beyond the grid that the jump integral reads.
 
 use super::grid::Grid;
-use super::jumps::JumpOperator;
+use super::jumps::{JumpOperator, OutsidePiece};
 use crate::model::{Contract, OptionKind};
 
 /// Penalty factor of the American constraint (violations are of order
@@ -208,15 +208,9 @@ impl Problem {
         ws.hist1.copy_from_slice(&v);
         let eps = self.fixed_point_budget / schedule.len() as f64;
         if let Some(j) = jumps.as_mut() {
-            // e^x at every extended node, so the outside values cost no exp.
-            let len = n + j.weights.len() - 1;
-            ws.ext_x = (0..len)
-                .map(|k| xs[0] + (k as i64 + j.m_lo) as f64 * h)
-                .collect();
-            ws.ext_ex = ws.ext_x.iter().map(|x| x.exp()).collect();
-            ws.ext = vec![0.0; len];
-            self.fill_outside(j, n, 0.0, &mut ws);
-            Self::apply_jumps(j, &v, &mut ws.ext, &mut ws.jv_cur);
+            ws.exs = xs.iter().map(|x| x.exp()).collect();
+            self.outside_pieces(j, &xs, 0.0, &mut ws.pieces);
+            j.apply_split(&v, &ws.exs, &ws.pieces, &mut ws.jv_cur);
             ws.jv_prev.copy_from_slice(&ws.jv_cur);
         }
         let mut tau = 0.0;
@@ -295,7 +289,7 @@ impl Problem {
         if let Some(j) = ctx.jumps.as_deref_mut() {
             // The first iterate's jump integral is extrapolated like the
             // guess, `2 J v^n - J v^(n-1)` (no FFT); the passes correct it.
-            self.fill_outside(j, n, ctx.tau_new, ws);
+            self.outside_pieces(j, ctx.xs, ctx.tau_new, &mut ws.pieces);
             for ((o, &a), &b) in ws.jv.iter_mut().zip(&ws.jv_cur).zip(&ws.jv_prev) {
                 *o = 2.0 * a - b;
             }
@@ -379,7 +373,7 @@ impl Problem {
                 scale = scale.max(ws.next[i].abs());
             }
             if let Some(j) = ctx.jumps.as_deref_mut() {
-                Self::apply_jumps(j, &ws.next, &mut ws.ext, &mut ws.jv_next);
+                j.apply_split(&ws.next, &ws.exs, &ws.pieces, &mut ws.jv_next);
             }
             // The active set the next pass would build from this solution:
             // unchanged (and, with jumps, the iteration error bound within
@@ -422,54 +416,60 @@ impl Problem {
         }
     }
 
-    /// Writes the asymptotic values at `tau` into the extended nodes beyond
-    /// the grid's ends (`ws.ext[k]` is node `k + m_lo`).
-    fn fill_outside(&self, j: &JumpOperator, n: usize, tau: f64, ws: &mut Workspace) {
+    /// The asymptotic values at `tau` of the nodes beyond the grid that the
+    /// jump integral reads (`m_lo <= j < 0` and `n <= j < n + m_hi`), as runs
+    /// of the form `a + b e^{x_j}`: zero, the discounted forward payoff, or
+    /// (American) the intrinsic value. Each pairwise difference of these is
+    /// monotone in `e^x`, so the kind changes at most twice on each side and
+    /// the runs are found by bisection.
+    fn outside_pieces(&self, j: &JumpOperator, xs: &[f64], tau: f64, out: &mut Vec<OutsidePiece>) {
+        out.clear();
+        let n = xs.len() as i64;
+        let h = xs[1] - xs[0];
         let (dq, dr) = ((-self.q * tau).exp(), (-self.r * tau).exp());
-        let len = ws.ext.len() as i64;
-        let k0 = (-j.m_lo).clamp(0, len) as usize;
-        let k1 = (n as i64 - j.m_lo).clamp(0, len) as usize;
-        // Only outside nodes in the money move with tau; the others stay
-        // zero (the buffer starts zeroed). `ext_x` increases with k.
-        let kx = ws.ext_x.partition_point(|&x| x < 0.0);
-        let (a, b) = match self.kind {
-            OptionKind::Put => (0..k0.min(kx), k1..k1.max(kx)),
-            OptionKind::Call => (kx.min(k0)..k0, k1.max(kx)..ws.ext.len()),
-        };
-        for k in a.chain(b) {
-            ws.ext[k] = self.asymptote_e(ws.ext_x[k], ws.ext_ex[k], dq, dr);
-        }
-    }
-
-    /// `out = J v`: copies the grid values into the extended array (whose
-    /// outside values [`Self::fill_outside`] wrote) and correlates.
-    fn apply_jumps(j: &mut JumpOperator, v: &[f64], ext: &mut [f64], out: &mut [f64]) {
-        let n = v.len() as i64;
-        let k0 = (-j.m_lo).max(0);
-        let k1 = (n - j.m_lo).min(ext.len() as i64);
-        if k1 > k0 {
-            let (k0, k1) = (k0 as usize, k1 as usize);
-            let i0 = (k0 as i64 + j.m_lo) as usize;
-            ext[k0..k1].copy_from_slice(&v[i0..i0 + (k1 - k0)]);
-        }
-        j.apply(ext, out);
-    }
-
-    /// [`Self::asymptote`] from `e^x` and the discount factors
-    /// `e^{-q tau}`, `e^{-r tau}` (no exp per node).
-    fn asymptote_e(&self, x: f64, ex: f64, dq: f64, dr: f64) -> f64 {
-        let itm_side = match self.kind {
-            OptionKind::Call => x > 0.0,
-            OptionKind::Put => x < 0.0,
-        };
-        if !itm_side {
-            return 0.0;
-        }
         let w = self.kind.sign();
-        let euro = (w * (ex * dq - dr)).max(0.0);
-        match self.exercise {
-            Exercise::European => euro,
-            Exercise::American => euro.max(w * (ex - 1.0)),
+        let kind_at = |jn: i64| -> (u8, f64, f64) {
+            let x = xs[0] + jn as f64 * h;
+            let itm = match self.kind {
+                OptionKind::Call => x > 0.0,
+                OptionKind::Put => x < 0.0,
+            };
+            if !itm {
+                return (0, 0.0, 0.0);
+            }
+            let ex = x.exp();
+            let euro = w * (ex * dq - dr);
+            let euro_piece = if euro > 0.0 {
+                (1, -w * dr, w * dq)
+            } else {
+                (0, 0.0, 0.0)
+            };
+            if self.exercise == Exercise::American && w * (ex - 1.0) > euro.max(0.0) {
+                (2, -w, w)
+            } else {
+                euro_piece
+            }
+        };
+        let m_hi = j.m_lo + j.weights.len() as i64 - 1;
+        for (lo, hi) in [(j.m_lo.min(0), 0), (n, n + m_hi.max(0))] {
+            let mut start = lo;
+            while start < hi {
+                let (kind, a, b) = kind_at(start);
+                // First index in (start, hi) of another kind.
+                let (mut l, mut r) = (start + 1, hi);
+                while l < r {
+                    let mid = l + (r - l) / 2;
+                    if kind_at(mid).0 == kind {
+                        l = mid + 1;
+                    } else {
+                        r = mid;
+                    }
+                }
+                if kind != 0 {
+                    out.push(OutsidePiece { j_a: start, j_b: l, a, b });
+                }
+                start = l;
+            }
         }
     }
 }
@@ -489,10 +489,9 @@ struct StepCtx<'a> {
 
 /// Buffers reused by every step.
 struct Workspace {
-    /// Extended array of the jump correlation, its nodes' `x` and `e^x`.
-    ext: Vec<f64>,
-    ext_x: Vec<f64>,
-    ext_ex: Vec<f64>,
+    /// `e^x` at the grid nodes and the outside values as pieces.
+    exs: Vec<f64>,
+    pieces: Vec<OutsidePiece>,
     /// Jump integral of the current iterate, of the new solution, and of
     /// the accepted values at the start of the step and one step before.
     jv: Vec<f64>,
@@ -514,9 +513,8 @@ struct Workspace {
 impl Workspace {
     fn new(n: usize) -> Self {
         Workspace {
-            ext: Vec::new(),
-            ext_x: Vec::new(),
-            ext_ex: Vec::new(),
+            exs: Vec::new(),
+            pieces: Vec::new(),
             jv: vec![0.0; n],
             jv_next: vec![0.0; n],
             jv_cur: vec![0.0; n],
