@@ -342,7 +342,9 @@ impl FftParts {
     fn correlate_padded(&mut self, at: usize, vals: &[f64], taps: usize, out: &mut [f64]) {
         self.buf[..at].iter_mut().for_each(|x| *x = 0.0);
         self.buf[at..at + vals.len()].copy_from_slice(vals);
-        self.buf[at + vals.len()..].iter_mut().for_each(|x| *x = 0.0);
+        self.buf[at + vals.len()..]
+            .iter_mut()
+            .for_each(|x| *x = 0.0);
         self.transform(taps, out);
     }
 
@@ -417,7 +419,12 @@ mod tests {
     #[test]
     fn split_sum_equals_the_full_extended_sum() {
         // Kernels wider than the grid, shifted both ways, short and long.
-        for &(mean, vol, n) in &[(-0.9, 0.45, 101usize), (0.3, 0.2, 64), (0.0, 0.02, 300), (-0.05, 0.3, 40)] {
+        for &(mean, vol, n) in &[
+            (-0.9, 0.45, 101usize),
+            (0.3, 0.2, 64),
+            (0.0, 0.02, 300),
+            (-0.05, 0.3, 40),
+        ] {
             let h = 0.01;
             let mut op = JumpOperator::new(mean, vol, h, n);
             let taps = op.weights.len();
@@ -427,9 +434,24 @@ mod tests {
             // constant-plus-exponential on the right.
             let split = -40i64;
             let pieces = [
-                OutsidePiece { j_a: op.m_lo.min(0) - 5, j_b: split, a: 1.0, b: -1.0 },
-                OutsidePiece { j_a: split, j_b: 0, a: 0.97, b: -0.99 },
-                OutsidePiece { j_a: n as i64, j_b: n as i64 + taps as i64 + 5, a: 0.1, b: 0.02 },
+                OutsidePiece {
+                    j_a: op.m_lo.min(0) - 5,
+                    j_b: split,
+                    a: 1.0,
+                    b: -1.0,
+                },
+                OutsidePiece {
+                    j_a: split,
+                    j_b: 0,
+                    a: 0.97,
+                    b: -0.99,
+                },
+                OutsidePiece {
+                    j_a: n as i64,
+                    j_b: n as i64 + taps as i64 + 5,
+                    a: 0.1,
+                    b: 0.02,
+                },
             ];
             let outside = |j: i64| {
                 pieces
@@ -437,11 +459,17 @@ mod tests {
                     .find(|p| p.j_a <= j && j < p.j_b)
                     .map_or(0.0, |p| p.a + p.b * x(j).exp())
             };
-            let v: Vec<f64> = (0..n).map(|i| (i as f64 * 0.37).sin() + 0.01 * i as f64).collect();
+            let v: Vec<f64> = (0..n)
+                .map(|i| (i as f64 * 0.37).sin() + 0.01 * i as f64)
+                .collect();
             let ext: Vec<f64> = (0..n + taps - 1)
                 .map(|k| {
                     let j = k as i64 + op.m_lo;
-                    if j >= 0 && (j as usize) < n { v[j as usize] } else { outside(j) }
+                    if j >= 0 && (j as usize) < n {
+                        v[j as usize]
+                    } else {
+                        outside(j)
+                    }
                 })
                 .collect();
             let mut full = vec![0.0; n];

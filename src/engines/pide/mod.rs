@@ -265,13 +265,23 @@ pub fn level_prices(
     }
     if c.expiry == 0.0 {
         let p = at_expiry(c).price;
-        return Ok(vec![LevelPrice { nodes: 0, steps: 0, price: p }; count]);
+        return Ok(vec![
+            LevelPrice {
+                nodes: 0,
+                steps: 0,
+                price: p
+            };
+            count
+        ]);
     }
     let ladder = Ladder::new(c, exercise, cfg);
     (0..count)
         .map(|l| {
             let (grid, steps) = ladder.level(l);
-            let lv = ladder.problem.solve(&grid, steps).map_err(PideError::Iteration)?;
+            let lv = ladder
+                .problem
+                .solve(&grid, steps)
+                .map_err(PideError::Iteration)?;
             Ok(LevelPrice {
                 nodes: grid.nodes,
                 steps,
@@ -299,7 +309,10 @@ pub fn price(c: &Contract, exercise: Exercise, cfg: &PideConfig) -> Result<PideR
     let mut level = 0usize;
     loop {
         let (grid, steps) = ladder.level(level);
-        let lv = ladder.problem.solve(&grid, steps).map_err(PideError::Iteration)?;
+        let lv = ladder
+            .problem
+            .solve(&grid, steps)
+            .map_err(PideError::Iteration)?;
         levels.push(lv);
         level += 1;
         if levels.len() >= MIN_LEVELS {

@@ -300,8 +300,16 @@ impl Problem {
         let tj = theta * dt * lam;
         // Contraction factor of the jump iteration (see `fixed_point_budget`).
         let denom = 1.0 + theta * dt * (self.r + lam);
-        let q = if denom > tj { tj / denom } else { f64::INFINITY };
-        let bound_factor = if q < 1.0 { q / (1.0 - q) } else { f64::INFINITY };
+        let q = if denom > tj {
+            tj / denom
+        } else {
+            f64::INFINITY
+        };
+        let bound_factor = if q < 1.0 {
+            q / (1.0 - q)
+        } else {
+            f64::INFINITY
+        };
         // A free node becomes active when it falls below the obstacle; an
         // active node is released only when the equation with v_i = g would
         // push it up (its residual is positive). Testing the penalised value
@@ -466,7 +474,12 @@ impl Problem {
                     }
                 }
                 if kind != 0 {
-                    out.push(OutsidePiece { j_a: start, j_b: l, a, b });
+                    out.push(OutsidePiece {
+                        j_a: start,
+                        j_b: l,
+                        a,
+                        b,
+                    });
                 }
                 start = l;
             }
