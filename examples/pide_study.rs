@@ -23,6 +23,7 @@ use saltus::engines::pide::{self, Exercise, PideConfig};
 use saltus::engines::series;
 use saltus::model::{Contract, JumpParams, OptionKind};
 
+#[allow(clippy::too_many_arguments)]
 fn contract(
     kind: OptionKind,
     s: f64,
