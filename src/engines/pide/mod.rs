@@ -8,13 +8,15 @@
 //!
 //! Accuracy is estimated, not assumed: the engine solves on a sequence of
 //! levels, each halving the space step and the time step, and from the last
-//! three values of each output estimates the observed order `p` and the
-//! error `|P_l - P_{l-1}| / (2^p - 1)` of the finest level (Richardson). It
-//! refines until that estimate is below the requested tolerance and returns
-//! the finest level's value with that estimate (the extrapolated value is
-//! not used: see [`estimate`]). The grid's domain truncation error is kept
-//! below the discretisation error by the width rule in [`grid`], not
-//! estimated by the refinement.
+//! four values of each output forms two candidates, the finest level with
+//! its Richardson estimate `|P_l - P_{l-1}| / (2^p - 1)` and the
+//! extrapolated value with the change of the extrapolation as its estimate
+//! (see [`estimate`]). It refines until the smaller estimate is below the
+//! requested tolerance and returns that candidate. The grid's domain
+//! truncation error is kept below the discretisation error by the width
+//! rule in [`grid`] (and the strike kept inside the grid, [`Ladder`]), not
+//! estimated by the refinement. [`level_prices`] gives the raw levels for
+//! convergence studies (`examples/pide_study.rs`).
 //!
 //! Sources: d'Halluin, Forsyth & Vetzal, "Robust numerical methods for
 //! contingent claims under jump diffusion processes", IMA J. Numer. Anal.
