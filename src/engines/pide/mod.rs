@@ -11,10 +11,10 @@
 //! four values of each output forms two candidates, the finest level with
 //! its Richardson estimate `|P_l - P_{l-1}| / (2^p - 1)` and the
 //! extrapolated value with the change of the extrapolation as its estimate
-//! (see [`estimate`]). It refines until the smaller estimate is below the
+//! (see `estimate`). It refines until the smaller estimate is below the
 //! requested tolerance and returns that candidate. The grid's domain
 //! truncation error is kept below the discretisation error by the width
-//! rule in [`grid`] (and the strike kept inside the grid, [`Ladder`]), not
+//! rule in [`grid`] (and the strike kept inside the grid, `Ladder`), not
 //! estimated by the refinement. [`level_prices`] gives the raw levels for
 //! convergence studies (`examples/pide_study.rs`).
 //!
