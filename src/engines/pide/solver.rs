@@ -16,7 +16,11 @@
 //! iteration of d'Halluin, Forsyth & Vetzal (2005): the diffusion part is
 //! solved exactly (tridiagonal), the jump integral lags one iterate; the
 //! iterate contracts by about `lambda dtau / (1 + (r + lambda) dtau)` per
-//! pass. American exercise adds the penalty term of Forsyth & Vetzal
+//! pass. The first iterate's integral is extrapolated from the last two
+//! steps (no FFT), each accepted value's integral is kept as the next
+//! step's explicit part, and the passes stop once the iteration error bound
+//! is below a share of the tolerance (`Problem::fixed_point_budget`), so a
+//! step usually costs two FFTs. American exercise adds the penalty term of Forsyth & Vetzal
 //! (2002): `rho (g - v)^+` with `rho = PENALTY`, the active set taken from
 //! the current iterate, iterated together with the jump term.
 //!
@@ -26,7 +30,7 @@
 //! in for nodes beyond the grid that the jump integral reads.
 
 use super::grid::Grid;
-use super::jumps::JumpOperator;
+use super::jumps::{JumpOperator, OutsidePiece};
 use crate::model::{Contract, OptionKind};
 
 /// Penalty factor of the American constraint (violations are of order
@@ -96,6 +100,17 @@ pub struct Problem {
     jump_vol: f64,
     /// Exponent of the time grid map (see [`time_schedule`]).
     pub time_power: f64,
+    /// Budget for the fixed-point iteration error of the jump term, in
+    /// units of `v` over the whole solve (0: iterate to [`ITERATION_TOL`]).
+    /// Each step stops once the active set is settled and the error bound
+    /// `q / (1 - q) |J u - J v_k|` of its pass `k` (`u` the iterate whose
+    /// jump integral the pass used) is below the budget divided by the
+    /// number of steps, where
+    /// `q = theta dtau lambda / (1 + theta dtau (r + lambda))` bounds the
+    /// contraction in the max norm (the weights are non-negative and sum to
+    /// one; the implicit matrix is an M-matrix with row sums at least
+    /// `1 + theta dtau (r + lambda)`).
+    pub fixed_point_budget: f64,
 }
 
 impl Problem {
@@ -112,6 +127,7 @@ impl Problem {
             jump_mean: c.jumps.mean,
             jump_vol: c.jumps.vol,
             time_power: 2.0,
+            fixed_point_budget: 0.0,
         }
     }
 
@@ -188,8 +204,15 @@ impl Problem {
         };
         let mut v: Vec<f64> = xs.iter().map(|&x| self.cell_payoff(x, h)).collect();
         let schedule = time_schedule(self.expiry, steps, self.time_power);
-        let mut ws = Workspace::new(n, jumps.as_ref());
+        let mut ws = Workspace::new(n);
         ws.hist1.copy_from_slice(&v);
+        let eps = self.fixed_point_budget / schedule.len() as f64;
+        if let Some(j) = jumps.as_mut() {
+            ws.exs = xs.iter().map(|x| x.exp()).collect();
+            self.outside_pieces(j, &xs, 0.0, &mut ws.pieces);
+            j.apply_split(&v, &ws.exs, &ws.pieces, &mut ws.jv_cur);
+            ws.jv_prev.copy_from_slice(&ws.jv_cur);
+        }
         let mut tau = 0.0;
         let mut max_it = 0;
         let (mut last_dt, mut prev_dt) = (0.0, 0.0);
@@ -200,10 +223,10 @@ impl Problem {
                 obstacle: &obstacle,
                 jumps: jumps.as_mut(),
                 coeffs: (alpha, beta, gamma),
-                tau,
                 tau_new,
                 dt: step_dt,
                 theta,
+                eps,
             };
             let it = self.step(&mut ctx, &v, &mut ws)?;
             max_it = max_it.max(it);
@@ -231,28 +254,22 @@ impl Problem {
         })
     }
 
-    /// One theta-step from `tau` to `tau_new`; the result is left in `ws.next`.
+    /// One theta-step from `tau` to `tau_new`; the result is left in
+    /// `ws.next`, and with jumps its jump integral in `ws.jv_cur` (the next
+    /// step's explicit part, so each step costs one FFT less).
     fn step(&self, ctx: &mut StepCtx<'_>, v: &[f64], ws: &mut Workspace) -> Result<usize, String> {
         let n = v.len();
         let (alpha, beta, gamma) = ctx.coeffs;
         let (dt, theta) = (ctx.dt, ctx.theta);
-        // Explicit part: v + (1 - theta) dt (L_D v + lambda J v).
-        if let Some(j) = ctx.jumps.as_deref_mut() {
-            if theta < 1.0 {
-                self.fill_ext(ctx.xs, v, j, ctx.tau, &mut ws.ext);
-                j.apply(&ws.ext, &mut ws.jv);
-            }
-        }
+        let has_jumps = ctx.jumps.is_some();
         let lam = self.lambda;
+        // Explicit part: v + (1 - theta) dt (L_D v + lambda J v), with J v
+        // left by the previous step.
         for i in 1..n - 1 {
             let mut rhs = v[i];
             if theta < 1.0 {
                 let ld = alpha * v[i - 1] + beta * v[i] + gamma * v[i + 1];
-                let jv = if ctx.jumps.is_some() {
-                    lam * ws.jv[i]
-                } else {
-                    0.0
-                };
+                let jv = if has_jumps { lam * ws.jv_cur[i] } else { 0.0 };
                 rhs += (1.0 - theta) * dt * (ld + jv);
             }
             ws.rhs0[i] = rhs;
@@ -263,46 +280,64 @@ impl Problem {
         for ((g, &now), &before) in ws.guess.iter_mut().zip(v).zip(&ws.hist1) {
             *g = 2.0 * now - before;
         }
-        if let Exercise::American = self.exercise {
+        let american = self.exercise == Exercise::American;
+        if american {
             for (g, &o) in ws.guess.iter_mut().zip(ctx.obstacle) {
                 *g = g.max(o);
             }
         }
+        if let Some(j) = ctx.jumps.as_deref_mut() {
+            // The first iterate's jump integral is extrapolated like the
+            // guess, `2 J v^n - J v^(n-1)` (no FFT); the passes correct it.
+            self.outside_pieces(j, ctx.xs, ctx.tau_new, &mut ws.pieces);
+            for ((o, &a), &b) in ws.jv.iter_mut().zip(&ws.jv_cur).zip(&ws.jv_prev) {
+                *o = 2.0 * a - b;
+            }
+        }
+        let lo = -theta * dt * alpha;
+        let up = -theta * dt * gamma;
+        let d0 = 1.0 - theta * dt * beta;
+        let tj = theta * dt * lam;
+        // Contraction factor of the jump iteration (see `fixed_point_budget`).
+        let denom = 1.0 + theta * dt * (self.r + lam);
+        let q = if denom > tj {
+            tj / denom
+        } else {
+            f64::INFINITY
+        };
+        let bound_factor = if q < 1.0 {
+            q / (1.0 - q)
+        } else {
+            f64::INFINITY
+        };
+        // A free node becomes active when it falls below the obstacle; an
+        // active node is released only when the equation with v_i = g would
+        // push it up (its residual is positive). Testing the penalised value
+        // itself against g would read rounding of `PENALTY * g` and can cycle.
+        let is_active = |was: bool, r: f64, u: &[f64], i: usize, g: f64| {
+            if was {
+                r - lo * u[i - 1] - d0 * g - up * u[i + 1] <= 0.0
+            } else {
+                u[i] < g
+            }
+        };
         let mut iterations = 0;
         loop {
             iterations += 1;
-            if let Some(j) = ctx.jumps.as_deref_mut() {
-                self.fill_ext(ctx.xs, &ws.guess, j, ctx.tau_new, &mut ws.ext);
-                j.apply(&ws.ext, &mut ws.jv);
-            }
             // Tridiagonal system for the interior nodes 1..n-2.
-            let lo = -theta * dt * alpha;
-            let up = -theta * dt * gamma;
-            let d0 = 1.0 - theta * dt * beta;
-            let mut flips = 0usize;
             for i in 1..n - 1 {
                 let mut r = ws.rhs0[i];
-                if ctx.jumps.is_some() {
-                    r += theta * dt * lam * ws.jv[i];
+                if has_jumps {
+                    r += tj * ws.jv[i];
                 }
                 let mut d = d0;
-                if let Exercise::American = self.exercise {
-                    // A free node becomes active when it falls below the
-                    // obstacle; an active node is released only when the
-                    // equation with v_i = g would push it up (its residual is
-                    // positive). Testing the penalised value itself against g
-                    // would read rounding of `PENALTY * g` and can cycle.
+                if american {
                     let g = ctx.obstacle[i];
-                    let active = if ws.active[i] {
-                        r - lo * ws.guess[i - 1] - d0 * g - up * ws.guess[i + 1] <= 0.0
-                    } else {
-                        ws.guess[i] < g
-                    };
-                    flips += usize::from(active != ws.active[i]);
+                    let active = is_active(ws.active[i], r, &ws.guess, i, g);
                     ws.active[i] = active;
                     if active {
                         d += PENALTY;
-                        r += PENALTY * ctx.obstacle[i];
+                        r += PENALTY * g;
                     }
                 }
                 ws.diag[i] = d;
@@ -314,12 +349,21 @@ impl Problem {
             // whenever the coefficients are non-negative).
             ws.next[0] = left;
             ws.next[n - 1] = right;
+            // Once c' stops changing on a run of unpenalised rows it stays
+            // fixed (same inputs, same rounding), so its division is skipped.
             let mut c_prime = 0.0;
             let mut d_prime = 0.0;
+            let mut inv = 0.0;
+            let mut steady = false;
             for i in 1..n - 1 {
-                let denom = ws.diag[i] - lo * c_prime;
-                c_prime = up / denom;
-                d_prime = (ws.b[i] - lo * d_prime) / denom;
+                let d = ws.diag[i];
+                if !(steady && d == d0) {
+                    inv = 1.0 / (d - lo * c_prime);
+                    let c_new = up * inv;
+                    steady = d == d0 && c_new == c_prime;
+                    c_prime = c_new;
+                }
+                d_prime = (ws.b[i] - lo * d_prime) * inv;
                 ws.cp[i] = c_prime;
                 ws.dp[i] = d_prime;
             }
@@ -327,8 +371,7 @@ impl Problem {
             for i in (1..n - 2).rev() {
                 ws.next[i] = ws.dp[i] - ws.cp[i] * ws.next[i + 1];
             }
-            let needs_iteration = ctx.jumps.is_some() || self.exercise == Exercise::American;
-            if !needs_iteration {
+            if !has_jumps && !american {
                 return Ok(iterations);
             }
             let mut change: f64 = 0.0;
@@ -337,14 +380,37 @@ impl Problem {
                 change = change.max((ws.next[i] - ws.guess[i]).abs());
                 scale = scale.max(ws.next[i].abs());
             }
-            ws.guess.copy_from_slice(&ws.next);
-            // Without jumps an unchanged active set means the penalised
-            // system is solved exactly (Forsyth & Vetzal 2002, their stopping
-            // rule); with jumps the lagged integral must settle too.
-            if change <= ITERATION_TOL * scale
-                || (flips == 0 && iterations > 1 && ctx.jumps.is_none())
-            {
-                break;
+            if let Some(j) = ctx.jumps.as_deref_mut() {
+                j.apply_split(&ws.next, &ws.exs, &ws.pieces, &mut ws.jv_next);
+            }
+            // The active set the next pass would build from this solution:
+            // unchanged (and, with jumps, the iteration error bound within
+            // the budget) means the next pass would reproduce it (without
+            // jumps exactly, Forsyth & Vetzal 2002), so it is accepted.
+            let mut flips = 0usize;
+            if american {
+                for i in 1..n - 1 {
+                    let r = ws.rhs0[i] + if has_jumps { tj * ws.jv_next[i] } else { 0.0 };
+                    let was = ws.active[i];
+                    flips += usize::from(is_active(was, r, &ws.next, i, ctx.obstacle[i]) != was);
+                }
+            }
+            // Fixed-point error bound: with u the iterate whose integral was
+            // used, |v_k - v*| <= q / (1 - q) |J u - J v_k| (max norm).
+            let settled = !has_jumps || {
+                let res = ws
+                    .jv
+                    .iter()
+                    .zip(&ws.jv_next)
+                    .fold(0.0f64, |m, (a, b)| m.max((a - b).abs()));
+                bound_factor * res <= ctx.eps
+            };
+            if (settled && flips == 0) || change <= ITERATION_TOL * scale {
+                if has_jumps {
+                    std::mem::swap(&mut ws.jv_prev, &mut ws.jv_cur);
+                    std::mem::swap(&mut ws.jv_cur, &mut ws.jv_next);
+                }
+                return Ok(iterations);
             }
             if iterations >= MAX_ITERATIONS {
                 return Err(format!(
@@ -353,28 +419,70 @@ impl Problem {
                     change / scale
                 ));
             }
+            std::mem::swap(&mut ws.guess, &mut ws.next);
+            std::mem::swap(&mut ws.jv, &mut ws.jv_next);
         }
-        Ok(iterations)
     }
 
-    /// Writes the grid values extended by the kernel's reach with the
-    /// asymptotic values beyond the ends.
-    fn fill_ext(&self, xs: &[f64], v: &[f64], j: &JumpOperator, tau: f64, ext: &mut Vec<f64>) {
-        let n = v.len();
-        let taps = j.weights.len();
-        ext.clear();
+    /// The asymptotic values at `tau` of the nodes beyond the grid that the
+    /// jump integral reads (`m_lo <= j < 0` and `n <= j < n + m_hi`), as runs
+    /// of the form `a + b e^{x_j}`: zero, the discounted forward payoff, or
+    /// (American) the intrinsic value. Each pairwise difference of these is
+    /// monotone in `e^x`, so the kind changes at most twice on each side and
+    /// the runs are found by bisection.
+    fn outside_pieces(&self, j: &JumpOperator, xs: &[f64], tau: f64, out: &mut Vec<OutsidePiece>) {
+        out.clear();
+        let n = xs.len() as i64;
         let h = xs[1] - xs[0];
-        // ext[k] = v(x_{k + m_lo})
-        for k in 0..n + taps - 1 {
-            let idx = k as i64 + j.m_lo;
-            let val = if idx < 0 {
-                self.asymptote(xs[0] + idx as f64 * h, tau)
-            } else if idx as usize >= n {
-                self.asymptote(xs[n - 1] + (idx as usize - (n - 1)) as f64 * h, tau)
-            } else {
-                v[idx as usize]
+        let (dq, dr) = ((-self.q * tau).exp(), (-self.r * tau).exp());
+        let w = self.kind.sign();
+        let kind_at = |jn: i64| -> (u8, f64, f64) {
+            let x = xs[0] + jn as f64 * h;
+            let itm = match self.kind {
+                OptionKind::Call => x > 0.0,
+                OptionKind::Put => x < 0.0,
             };
-            ext.push(val);
+            if !itm {
+                return (0, 0.0, 0.0);
+            }
+            let ex = x.exp();
+            let euro = w * (ex * dq - dr);
+            let euro_piece = if euro > 0.0 {
+                (1, -w * dr, w * dq)
+            } else {
+                (0, 0.0, 0.0)
+            };
+            if self.exercise == Exercise::American && w * (ex - 1.0) > euro.max(0.0) {
+                (2, -w, w)
+            } else {
+                euro_piece
+            }
+        };
+        let m_hi = j.m_lo + j.weights.len() as i64 - 1;
+        for (lo, hi) in [(j.m_lo.min(0), 0), (n, n + m_hi.max(0))] {
+            let mut start = lo;
+            while start < hi {
+                let (kind, a, b) = kind_at(start);
+                // First index in (start, hi) of another kind.
+                let (mut l, mut r) = (start + 1, hi);
+                while l < r {
+                    let mid = l + (r - l) / 2;
+                    if kind_at(mid).0 == kind {
+                        l = mid + 1;
+                    } else {
+                        r = mid;
+                    }
+                }
+                if kind != 0 {
+                    out.push(OutsidePiece {
+                        j_a: start,
+                        j_b: l,
+                        a,
+                        b,
+                    });
+                }
+                start = l;
+            }
         }
     }
 }
@@ -385,16 +493,24 @@ struct StepCtx<'a> {
     obstacle: &'a [f64],
     jumps: Option<&'a mut JumpOperator>,
     coeffs: (f64, f64, f64),
-    tau: f64,
     tau_new: f64,
     dt: f64,
     theta: f64,
+    /// Iteration error allowed in this step (units of `v`).
+    eps: f64,
 }
 
 /// Buffers reused by every step.
 struct Workspace {
-    ext: Vec<f64>,
+    /// `e^x` at the grid nodes and the outside values as pieces.
+    exs: Vec<f64>,
+    pieces: Vec<OutsidePiece>,
+    /// Jump integral of the current iterate, of the new solution, and of
+    /// the accepted values at the start of the step and one step before.
     jv: Vec<f64>,
+    jv_next: Vec<f64>,
+    jv_cur: Vec<f64>,
+    jv_prev: Vec<f64>,
     rhs0: Vec<f64>,
     guess: Vec<f64>,
     next: Vec<f64>,
@@ -408,11 +524,14 @@ struct Workspace {
 }
 
 impl Workspace {
-    fn new(n: usize, jumps: Option<&JumpOperator>) -> Self {
-        let taps = jumps.map_or(1, |j| j.weights.len());
+    fn new(n: usize) -> Self {
         Workspace {
-            ext: Vec::with_capacity(n + taps),
+            exs: Vec::new(),
+            pieces: Vec::new(),
             jv: vec![0.0; n],
+            jv_next: vec![0.0; n],
+            jv_cur: vec![0.0; n],
+            jv_prev: vec![0.0; n],
             rhs0: vec![0.0; n],
             guess: vec![0.0; n],
             next: vec![0.0; n],
