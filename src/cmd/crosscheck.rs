@@ -33,7 +33,7 @@ docs/engines.md); mc_paths the paths simulated; mc_ess the effective sample size
 payoffs; mc_hits the paths that paid, counted under the sampling law before weighting.\n\
 price_pide is the European PIDE price (a fourth independent engine, to --pide-tol), pide_gap \
 price_pide - price_series, pide_error_est the PIDE's own error estimate; the PIDE agrees when \
-|pide_gap| <= pide_error_est. Rows outside its reach (lambda T above 50, a standard deviation \
+|pide_gap| <= max(pide_error_est, the PIDE tolerance). Rows outside its reach (zero vol, lambda T above 50, a standard deviation \
 of ln S_T above 5, expiry below 1e-6 years, |ln(S/K)| beyond 12 x max(1, sd of ln S_T)) or needing more than 1e7 node-steps are inconclusive for it.\n\
 American rows (column exercise) are checked by PIDE grid convergence and the bounds of early \
 exercise (>= European series, >= intrinsic, = European for a call with q = 0 and r >= 0): \

@@ -55,6 +55,13 @@ pub fn pide_reach(c: &Contract) -> Option<String> {
             c.expiry
         ));
     }
+    if c.vol == 0.0 && c.expiry > 0.0 {
+        return Some(
+            "zero diffusion vol is beyond the PIDE's reach (without diffusion its grid \
+             convergence, and so its error estimate, is not reliable)"
+                .to_string(),
+        );
+    }
     let j = &c.jumps;
     let sd = ((c.vol * c.vol + j.rate * (j.mean * j.mean + j.vol * j.vol)) * c.expiry).sqrt();
     if sd > PIDE_MAX_SD {
