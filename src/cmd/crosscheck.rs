@@ -39,10 +39,11 @@ American rows (column exercise) are checked by PIDE grid convergence and the bou
 exercise (>= European series, >= intrinsic, = European for a call with q = 0 and r >= 0): \
 price_series is the European series price, price_pide the American PIDE price, pide_gap empty, \
 the Fourier and Monte Carlo columns empty, and the verdict names the checks.\n\
-verdict is 'agree', 'inconclusive: <why>' (an engine could not resolve the price, e.g. no \
-in-the-money Monte Carlo paths, or the Fourier engine failed or does not apply, as to a lattice \
-law with zero vol and zero jump vol: price_fourier and fourier_gap are then empty) or \
-'disagree: <why>'.\n\
+verdict is 'agree' (every engine agreed), 'agree by <engines> (no verdict from the others: \
+<why>)' (Fourier or Monte Carlo agreed; another engine could not decide or does not apply, as \
+Fourier to a lattice law with zero vol and zero jump vol, or the PIDE beyond its reach), \
+'inconclusive: <why>' (neither Fourier nor Monte Carlo could decide) or 'disagree: <why>' (any \
+engine outside its tolerance). The PIDE can make a row disagree but does not carry an agree alone.\n\
 Each row's random stream is derived from --seed and the row's id (without an id: a hash of the \
 row's fields), so results do not depend on thread count, row order or how the book is split. \
 Rows that repeat an id share a stream: they are counted and named in a warning (this check holds \
@@ -461,8 +462,8 @@ fn print_summary(s: &CheckAccumulator, cfg: &CheckConfig) {
     eprintln!("  disagree (flagged)    {}", s.disagree);
     eprintln!(
         "  tolerances            Monte Carlo |z| <= {} (standard errors); Fourier |gap| <= {:e} x price_series \
-         (relative), at least {:e} x spot (absolute, price units); PIDE |gap| <= its own error estimate \
-         (PIDE tolerance {:e} x spot, price units)",
+         (relative), at least {:e} x spot (absolute, price units); PIDE |gap| <= the larger of its own error estimate and \
+         its tolerance {:e} x spot (price units)",
         cfg.z_max, cfg.fourier_rel_tol, ABS_FLOOR, cfg.pide.tol_spot
     );
     eprintln!(

@@ -51,8 +51,14 @@
 //!   `ln S_T`, an expiry or a moneyness the grid cannot resolve) or one where the engine does not
 //!   reach its tolerance within [`PIDE_MAX_WORK`] is inconclusive for the
 //!   PIDE, with the reason; the other engines still decide.
-//! - The row's verdict is `disagree: ...` if any check fails, `inconclusive: ...`
-//!   if none fails but one could not decide, otherwise `agree`.
+//! - The row's verdict is `disagree: ...` if any check fails. Otherwise it
+//!   is `agree` when every engine agreed, `agree by <engines> (no verdict
+//!   from the others: <why>)` when Fourier or Monte Carlo agreed and another
+//!   engine could not decide or does not apply (a lattice law for Fourier,
+//!   a row beyond the PIDE's reach), and `inconclusive: <why>` when neither
+//!   Fourier nor Monte Carlo agreed. The PIDE can make a row disagree but
+//!   does not carry an `agree` alone (its tolerance, about 1e-5 of spot,
+//!   says little about a price far below it).
 //!
 //! American rows ([`check_american`]) have no series, Fourier or Monte
 //! Carlo value to compare with; they are checked by the PIDE's grid
@@ -196,6 +202,11 @@ pub fn check(c: &Contract, key: u64, cfg: &CheckConfig) -> Result<RowCheck, Chec
     let tol = (cfg.fourier_rel_tol * s).max(floor);
     let mut fails = Vec::new();
     let mut unsure = Vec::new();
+    // The engines whose agreement can carry a row: Fourier and Monte Carlo.
+    // The PIDE (to a tolerance of about 1e-5 of spot) can make a row
+    // disagree but does not carry one alone: its tolerance says little about
+    // a price far below it.
+    let mut agreed: Vec<&str> = Vec::new();
     let gap = match &fourier {
         Err(e @ fourier::FourierError::Lattice) => {
             unsure.push(format!("fourier not applicable: {e}"));
@@ -214,6 +225,8 @@ pub fn check(c: &Contract, key: u64, cfg: &CheckConfig) -> Result<RowCheck, Chec
                 ));
             } else if gap.abs() > tol {
                 fails.push(format!("fourier gap {gap:.3e} beyond {tol:.1e}"));
+            } else {
+                agreed.push("fourier");
             }
             Some(gap)
         }
@@ -246,17 +259,27 @@ pub fn check(c: &Contract, key: u64, cfg: &CheckConfig) -> Result<RowCheck, Chec
     match mv.outcome {
         Outcome::Disagree => fails.extend(mv.reason),
         Outcome::Inconclusive => unsure.extend(mv.reason),
-        Outcome::Agree => {}
+        Outcome::Agree => agreed.push("mc"),
     }
     let (outcome, verdict) = if !fails.is_empty() {
         (Outcome::Disagree, format!("disagree: {}", fails.join("; ")))
-    } else if !unsure.is_empty() {
+    } else if agreed.is_empty() {
         (
             Outcome::Inconclusive,
             format!("inconclusive: {}", unsure.join("; ")),
         )
-    } else {
+    } else if unsure.is_empty() {
         (Outcome::Agree, "agree".to_string())
+    } else {
+        // Decided by the engines that agreed; the others say why they could not.
+        (
+            Outcome::Agree,
+            format!(
+                "agree by {} (no verdict from the others: {})",
+                agreed.join(" and "),
+                unsure.join("; ")
+            ),
+        )
     };
     Ok(RowCheck {
         price_series: s,
