@@ -509,7 +509,7 @@ tr.book td {{ font-weight: bold; background: #fafafa; }}
 figure {{ margin: 12px 0; }}
 </style></head><body>
 <h1>{title}</h1>
-<p class="note">Each row priced by the Merton closed-form series and by two independent engines: the Fourier (Lewis) integral and Monte Carlo with exact terminal sampling. A row agrees when both are within tolerance of the series, is inconclusive when an engine cannot resolve its price well enough to decide, and disagrees otherwise. Model estimates: validate and use under your firm's model-risk policy.</p>
+<p class="note">Each row priced by the Merton closed-form series and by independent engines: the Fourier (Lewis) integral, Monte Carlo with exact terminal sampling and the PIDE. A row disagrees when any engine is outside its tolerance of the series; otherwise it agrees when Fourier or Monte Carlo is within tolerance (the others' reasons for giving no verdict are kept in the verdict), and is inconclusive when neither could decide. Model estimates: validate and use under your firm's model-risk policy.</p>
 <h2>Verdicts</h2>
 {verdict_line}
 <table>
