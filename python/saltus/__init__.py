@@ -36,7 +36,8 @@ import numpy as np
 
 from . import _saltus
 
-__all__ = ["price", "implied_vol", "RESULT_COLUMNS", "__version__"]
+__all__ = ["price", "crosscheck", "implied_vol", "RESULT_COLUMNS", "CHECK_COLUMNS",
+           "__version__"]
 
 __version__ = _saltus.version()
 
@@ -55,6 +56,13 @@ RESULT_COLUMNS = [
     "d_jump_vol",
     "terms",
     "status",
+]
+
+#: The result columns of :func:`crosscheck`, in the order of ``saltus crosscheck``.
+CHECK_COLUMNS = [
+    "price_series", "price_fourier", "price_mc", "mc_stderr", "mc_z", "fourier_gap",
+    "fourier_gap_rel", "fourier_error_est", "mc_method", "mc_paths", "mc_ess", "mc_hits",
+    "price_pide", "pide_gap", "pide_error_est", "verdict", "status",
 ]
 
 _REQUIRED = [
@@ -336,3 +344,43 @@ def implied_vol(
         return _saltus.implied_vol(kind_list, *arrays)
     except ValueError as e:
         raise BookError(str(e)) from None
+
+
+def crosscheck(frame: Any, *, paths: int = 1_000_000, seed: int = 20_261_201,
+               pide_tol: Optional[float] = None) -> Any:
+    """Re-prices every row with independent engines (Fourier, Monte Carlo,
+    the PIDE) and compares each with the Merton series, as
+    ``saltus crosscheck --paths N --seed S`` does: the same columns
+    (:data:`CHECK_COLUMNS`) and verdict rules (docs/engines.md).
+
+    A row's Monte Carlo stream is keyed on ``(seed, id)`` when the book has
+    an ``id`` column and the row a non-empty id: such rows get the command
+    line's digits. Without an id the key is a hash of the row's values,
+    never its position (results do not depend on order or split, but differ
+    from the command line's, which hashes the CSV text). Fields the command
+    line leaves empty are NaN; ``mc_method`` and ``verdict`` are text.
+    Expiries may be dates with a ``valuation_date`` column (no
+    ``expiry_years`` column is added here).
+    """
+    kind = _frame_kind(frame)
+    cols = _columns(frame, kind)
+    names = list(cols)
+    req = _find(names, _REQUIRED, True)
+    opt = _find(names, _OPTIONAL + ["id"], False)
+    args = {w: _column_arg(cols[req[w]], w) for w in _REQUIRED[1:]}
+    for w in _OPTIONAL + ["id"]:
+        args[w] = _column_arg(cols[opt[w]], w) if w in opt else None
+    if args["id"] is not None and isinstance(args["id"], np.ndarray):
+        # Numeric ids: as text, the way a CSV holds them when integral.
+        args["id"] = [None if v != v else (str(int(v)) if float(v).is_integer() else repr(v))
+                      for v in args["id"].tolist()]
+    if pide_tol is not None:
+        args["pide_tol"] = float(pide_tol)
+    kinds = _arrow_text(cols[req["kind"]])
+    if kinds is None:
+        kinds = _clean_text(_text_arg(cols[req["kind"]]))
+    try:
+        res = _saltus.crosscheck_columns(kinds, paths=int(paths), seed=int(seed), **args)
+    except ValueError as e:
+        raise BookError(str(e)) from None
+    return _assemble(frame, kind, res, CHECK_COLUMNS)

@@ -7,6 +7,7 @@ import numpy.typing as npt
 
 __version__: str
 RESULT_COLUMNS: List[str]
+CHECK_COLUMNS: List[str]
 
 class BookError(ValueError): ...
 
@@ -25,3 +26,8 @@ def implied_vol(
     div_yield: npt.ArrayLike = ...,
 ) -> Tuple[npt.NDArray[np.float64], List[str]]:
     """Black-Scholes implied volatilities; NaN with a reason where there is none."""
+
+def crosscheck(frame: Any, *, paths: int = ..., seed: int = ...,
+               pide_tol: Optional[float] = ...) -> Any:
+    """Re-prices every row with Fourier, Monte Carlo and the PIDE and compares
+    each with the series, as `saltus crosscheck` does."""

@@ -34,3 +34,10 @@ def implied_vol(
     rate: npt.NDArray[np.float64],
     div_yield: npt.NDArray[np.float64],
 ) -> Tuple[npt.NDArray[np.float64], List[str]]: ...
+def crosscheck_columns(
+    kind: Any, spot: Any, strike: Any, expiry: Any, rate: Any, vol: Any, jump_rate: Any,
+    jump_mean: Any, jump_vol: Any, div_yield: Any = None, quantity: Any = None,
+    multiplier: Any = None, valuation_date: Any = None, default_valuation: Optional[str] = None,
+    exercise: Any = None, id: Any = None, paths: int = 1000000, seed: int = 20261201,
+    pide_tol: Optional[float] = None,
+) -> Dict[str, Any]: ...

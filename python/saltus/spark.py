@@ -4,6 +4,7 @@ native library on every executor, partition by partition, through Arrow
 
     from saltus import spark as saltus_spark
     priced = saltus_spark.price(df)            # df: a Spark DataFrame with the book's columns
+    checked = saltus_spark.crosscheck(df, paths=200_000, seed=7)
 
 The output keeps the input columns (as ``saltus price`` echoes them) followed
 by the result columns, with a declared schema: doubles for ``price`` ...
@@ -72,6 +73,57 @@ def _id_column(names: List[str]) -> Any:
     return None
 
 
+def _run_in_arrow(df: Any, schema: Any, fn: Any) -> Any:
+    """mapInArrow with `fn(table) -> table` per batch; statuses relabelled by id."""
+    names = [f.name for f in schema.fields]
+    id_col = _id_column(df.columns)
+
+    def run(batches: Iterator[Any]) -> Iterator[Any]:
+        import pyarrow as pa
+
+        for batch in batches:
+            table = pa.Table.from_batches([batch])
+            out = fn(table)
+            ids = table.column(id_col).to_pylist() if id_col is not None else None
+            status = _relabel(out.column("status").to_pylist(), ids)
+            out = out.set_column(out.column_names.index("status"), "status", pa.array(status))
+            yield from out.select(names).to_batches()
+
+    return df.mapInArrow(run, schema)
+
+
+def crosscheck_schema(schema: Any) -> Any:
+    """The schema :func:`crosscheck` returns for an input ``schema``."""
+    from pyspark.sql.types import DoubleType, StringType, StructField, StructType
+
+    results = saltus.CHECK_COLUMNS
+    text = {"mc_method", "verdict", "status"}
+    kept = [f for f in schema.fields if f.name not in results]
+    return StructType(kept + [
+        StructField(c, StringType() if c in text else DoubleType(), c != "status")
+        for c in results
+    ])
+
+
+def crosscheck(df: Any, paths: int = 1_000_000, seed: int = 20_261_201, *,
+               pide_tol: Any = None) -> Any:
+    """Cross-checks every row of a PySpark DataFrame as
+    ``saltus crosscheck --paths N --seed S`` does (:func:`saltus.crosscheck`):
+    the input columns, then :data:`saltus.CHECK_COLUMNS`. Each row's Monte
+    Carlo stream is keyed on the seed and its ``id``, so the results do not
+    depend on the partitioning and equal the command line's for rows with an
+    id.
+    """
+    schema = crosscheck_schema(df.schema)
+
+    def fn(table: Any) -> Any:
+        import saltus as s
+
+        return s.crosscheck(table, paths=paths, seed=seed, pide_tol=pide_tol)
+
+    return _run_in_arrow(df, schema, fn)
+
+
 def price(df: Any, *, implied_vol: bool = False) -> Any:
     """Prices every row of a PySpark DataFrame (see the module docstring).
 
@@ -90,20 +142,10 @@ def price(df: Any, *, implied_vol: bool = False) -> Any:
     executors when the job runs.
     """
     schema = output_schema(df.schema, implied_vol)
-    names = [f.name for f in schema.fields]
-    id_col = _id_column(df.columns)
 
-    def run(batches: Iterator[Any]) -> Iterator[Any]:
-        import pyarrow as pa
-
+    def fn(table: Any) -> Any:
         import saltus as s
 
-        for batch in batches:
-            table = pa.Table.from_batches([batch])
-            out = s.price(table, implied_vol=implied_vol)
-            ids = table.column(id_col).to_pylist() if id_col is not None else None
-            status = _relabel(out.column("status").to_pylist(), ids)
-            out = out.set_column(out.column_names.index("status"), "status", pa.array(status))
-            yield from out.select(names).to_batches()
+        return s.price(table, implied_vol=implied_vol)
 
-    return df.mapInArrow(run, schema)
+    return _run_in_arrow(df, schema, fn)

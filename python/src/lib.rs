@@ -139,6 +139,107 @@ fn price_columns_py<'py>(
     Ok(d)
 }
 
+/// Cross-checks a book given as columns (series against Fourier, Monte Carlo
+/// and the PIDE), as `saltus crosscheck` does; returns a dict of result
+/// columns (floats, `mc_method`, `verdict` and `status` as lists of str).
+#[pyfunction(name = "crosscheck_columns")]
+#[pyo3(signature = (kind, spot, strike, expiry, rate, vol, jump_rate, jump_mean, jump_vol,
+    div_yield=None, quantity=None, multiplier=None, valuation_date=None,
+    default_valuation=None, exercise=None, id=None, paths=1_000_000, seed=20_261_201,
+    pide_tol=None))]
+#[allow(clippy::too_many_arguments)]
+fn crosscheck_columns_py<'py>(
+    py: Python<'py>,
+    kind: ColArg<'py>,
+    spot: ColArg<'py>,
+    strike: ColArg<'py>,
+    expiry: ColArg<'py>,
+    rate: ColArg<'py>,
+    vol: ColArg<'py>,
+    jump_rate: ColArg<'py>,
+    jump_mean: ColArg<'py>,
+    jump_vol: ColArg<'py>,
+    div_yield: Option<ColArg<'py>>,
+    quantity: Option<ColArg<'py>>,
+    multiplier: Option<ColArg<'py>>,
+    valuation_date: Option<ColArg<'py>>,
+    default_valuation: Option<String>,
+    exercise: Option<ColArg<'py>>,
+    id: Option<ColArg<'py>>,
+    paths: u64,
+    seed: u64,
+    pide_tol: Option<f64>,
+) -> PyResult<Bound<'py, PyDict>> {
+    use saltus::book::columns_check::{crosscheck_columns, CHECK_NUMBER_COLUMNS};
+    use saltus::engines::monte_carlo::{McConfig, Work, MAX_PATHS};
+    use saltus::reports::crosscheck::CheckConfig;
+    if !(2..=MAX_PATHS).contains(&paths) {
+        return Err(PyValueError::new_err(format!(
+            "paths must be between 2 and {MAX_PATHS}, got {paths}"
+        )));
+    }
+    let mut cfg = CheckConfig {
+        mc: McConfig {
+            work: Work::Paths(paths),
+            seed,
+            ..McConfig::default()
+        },
+        ..CheckConfig::default()
+    };
+    if let Some(t) = pide_tol {
+        if !(t.is_finite() && (1e-9..=1e-2).contains(&t)) {
+            return Err(PyValueError::new_err(format!(
+                "pide_tol must be between 1e-9 and 1e-2 (a fraction of spot), got {t}"
+            )));
+        }
+        cfg.pide.tol_spot = t;
+    }
+    let default_valuation = parse_valuation(default_valuation)?;
+    let book = ColumnBook {
+        kind: kind.column()?,
+        spot: spot.column()?,
+        strike: strike.column()?,
+        expiry: expiry.column()?,
+        rate: rate.column()?,
+        vol: vol.column()?,
+        jump_rate: jump_rate.column()?,
+        jump_mean: jump_mean.column()?,
+        jump_vol: jump_vol.column()?,
+        div_yield: opt_column(&div_yield)?,
+        quantity: opt_column(&quantity)?,
+        multiplier: opt_column(&multiplier)?,
+        valuation_date: opt_column(&valuation_date)?,
+        default_valuation,
+        exercise: opt_column(&exercise)?,
+        pide: saltus::engines::pide::PideConfig::default(),
+    };
+    let ids = opt_column(&id)?;
+    let out = py
+        .detach(|| crosscheck_columns(&book, ids.as_ref(), &cfg))
+        .map_err(|e| PyValueError::new_err(e.to_string()))?;
+    let d = PyDict::new(py);
+    let mut values = out.values.into_iter();
+    for name in CHECK_NUMBER_COLUMNS {
+        let v = values.next().expect("one vector per column");
+        if name == "mc_paths" {
+            d.set_item("mc_method", out.mc_method.clone())?;
+        }
+        d.set_item(name, v.into_pyarray(py))?;
+    }
+    d.set_item("verdict", out.verdict)?;
+    d.set_item("status", status_list(py, out.status)?)?;
+    Ok(d)
+}
+
+fn parse_valuation(t: Option<String>) -> PyResult<Option<saltus::market::dates::Date>> {
+    match t {
+        None => Ok(None),
+        Some(t) => saltus::market::dates::parse_date(&t)
+            .map(Some)
+            .map_err(|e| PyValueError::new_err(format!("valuation_date '{t}' {e}"))),
+    }
+}
+
 /// The statuses as a Python list, every `ok` the same interned string
 /// (a million rows then make a handful of string objects, not a million).
 fn status_list(py: Python<'_>, status: Vec<String>) -> PyResult<Bound<'_, PyList>> {
@@ -236,6 +337,7 @@ fn version() -> &'static str {
 fn _saltus(m: &Bound<'_, PyModule>) -> PyResult<()> {
     m.add_function(wrap_pyfunction!(price_columns_py, m)?)?;
     m.add_function(wrap_pyfunction!(implied_vol_py, m)?)?;
+    m.add_function(wrap_pyfunction!(crosscheck_columns_py, m)?)?;
     m.add_function(wrap_pyfunction!(version, m)?)?;
     Ok(())
 }

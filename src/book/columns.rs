@@ -52,7 +52,7 @@ pub enum Column<'a> {
 }
 
 impl<'a> Column<'a> {
-    fn len(&self) -> usize {
+    pub(crate) fn len(&self) -> usize {
         match self {
             Column::Numbers(v) => v.len(),
             Column::Text(v) => v.len(),
@@ -62,7 +62,7 @@ impl<'a> Column<'a> {
 
     /// Row `i` as text, surrounding ASCII spaces trimmed; `None` for an
     /// empty cell, a number, or offsets that do not fit the data.
-    fn text(&self, i: usize) -> Option<&'a [u8]> {
+    pub(crate) fn text(&self, i: usize) -> Option<&'a [u8]> {
         let t = match *self {
             Column::Numbers(_) => return None,
             Column::Text(v) => v[i].as_deref()?.as_bytes(),

@@ -8,6 +8,7 @@
 //! empty result fields and a status naming the line, column and problem.
 
 pub mod columns;
+pub mod columns_check;
 pub mod header;
 pub mod pipeline;
 pub mod reader;
