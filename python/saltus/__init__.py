@@ -36,7 +36,7 @@ import numpy as np
 
 from . import _saltus
 
-__all__ = ["price", "crosscheck", "implied_vol", "RESULT_COLUMNS", "CHECK_COLUMNS",
+__all__ = ["price", "crosscheck", "calibrate", "implied_vol", "RESULT_COLUMNS", "CHECK_COLUMNS",
            "__version__"]
 
 __version__ = _saltus.version()
@@ -384,3 +384,49 @@ def crosscheck(frame: Any, *, paths: int = 1_000_000, seed: int = 20_261_201,
     except ValueError as e:
         raise BookError(str(e)) from None
     return _assemble(frame, kind, res, CHECK_COLUMNS)
+
+
+def calibrate(quotes: Any, *, valuation_date: Any = None, per_expiry: bool = False,
+              keep_arbitrage: bool = False):
+    """Fits ``vol, jump_rate, jump_mean, jump_vol`` per underlying to a quote
+    sheet, exactly as ``saltus calibrate`` does (docs/calibration.md), and
+    returns ``(params, residuals)`` as pandas DataFrames with the columns of
+    PARAMS.csv and of the residuals file.
+
+    ``quotes`` is a path to a quotes CSV, or a pandas DataFrame (or pyarrow
+    Table) with the quote sheet's columns; a frame is handed to the library
+    as CSV text with every number in round-trip form, so the fit is the one
+    the command line makes of the same sheet. Statuses of a frame's rows name
+    the row's 0-based position (``row N``); for a file, its line.
+    ``valuation_date`` serves expiries written as dates, as
+    ``--valuation-date``.
+    """
+    import io
+    import os
+    import re
+
+    import pandas as pd
+
+    from_frame = not isinstance(quotes, (str, bytes, os.PathLike))
+    if from_frame:
+        frame = quotes.to_pandas() if hasattr(quotes, "to_pandas") and not hasattr(
+            quotes, "to_csv") else quotes
+        data = frame.to_csv(index=False, float_format=None).encode()
+    else:
+        with open(quotes, "rb") as f:
+            data = f.read()
+    if valuation_date is not None and not isinstance(valuation_date, str):
+        valuation_date = _date_text(valuation_date, "valuation_date")
+    try:
+        params, residuals = _saltus.calibrate_csv(
+            data, valuation_date=valuation_date, per_expiry=per_expiry,
+            keep_arbitrage=keep_arbitrage)
+    except ValueError as e:
+        raise BookError(str(e)) from None
+    read = lambda t: pd.read_csv(io.StringIO(t), float_precision="round_trip",  # noqa: E731
+                                 keep_default_na=False, na_values=[""])
+    p, r = read(params), read(residuals)
+    if from_frame and "status" in r.columns:
+        r["status"] = [re.sub(r"line (\d+):", lambda m: f"row {int(m.group(1)) - 2}:", str(s))
+                       for s in r["status"]]
+    return p, r

@@ -31,3 +31,8 @@ def crosscheck(frame: Any, *, paths: int = ..., seed: int = ...,
                pide_tol: Optional[float] = ...) -> Any:
     """Re-prices every row with Fourier, Monte Carlo and the PIDE and compares
     each with the series, as `saltus crosscheck` does."""
+
+def calibrate(quotes: Any, *, valuation_date: Any = ..., per_expiry: bool = ...,
+              keep_arbitrage: bool = ...) -> Tuple[Any, Any]:
+    """Fits the Merton parameters per underlying to a quote sheet as
+    `saltus calibrate` does; returns (params, residuals) DataFrames."""

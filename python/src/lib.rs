@@ -231,6 +231,43 @@ fn crosscheck_columns_py<'py>(
     Ok(d)
 }
 
+/// Calibrates the Merton parameters to a quote sheet given as CSV bytes,
+/// exactly as `saltus calibrate` does; returns the PARAMS.csv and the
+/// residuals CSV texts the command would write.
+#[pyfunction(name = "calibrate_csv")]
+#[pyo3(signature = (quotes, valuation_date=None, per_expiry=false, keep_arbitrage=false))]
+fn calibrate_csv_py(
+    py: Python<'_>,
+    quotes: Vec<u8>,
+    valuation_date: Option<String>,
+    per_expiry: bool,
+    keep_arbitrage: bool,
+) -> PyResult<(String, String)> {
+    use saltus::market::calibrate::{calibrate, CalibrationSpec};
+    use saltus::market::quotes::read_quotes_dated;
+    use saltus::reports::calibration_report as report;
+    let date = parse_valuation(valuation_date)?;
+    let spec = CalibrationSpec {
+        per_expiry,
+        keep_arbitrage,
+        ..CalibrationSpec::default()
+    };
+    py.detach(|| -> Result<(String, String), String> {
+        let sheet = read_quotes_dated(&quotes[..], date).map_err(|e| e.to_string())?;
+        let fits = calibrate(&sheet, &spec);
+        let outcomes = report::outcomes(&sheet, &fits, &spec);
+        let mut params = Vec::new();
+        report::write_params(&mut params, &sheet, &fits, &spec).map_err(|e| e.to_string())?;
+        let mut residuals = Vec::new();
+        report::write_residuals(&mut residuals, &sheet, &outcomes).map_err(|e| e.to_string())?;
+        Ok((
+            String::from_utf8_lossy(&params).into_owned(),
+            String::from_utf8_lossy(&residuals).into_owned(),
+        ))
+    })
+    .map_err(PyValueError::new_err)
+}
+
 fn parse_valuation(t: Option<String>) -> PyResult<Option<saltus::market::dates::Date>> {
     match t {
         None => Ok(None),
@@ -338,6 +375,7 @@ fn _saltus(m: &Bound<'_, PyModule>) -> PyResult<()> {
     m.add_function(wrap_pyfunction!(price_columns_py, m)?)?;
     m.add_function(wrap_pyfunction!(implied_vol_py, m)?)?;
     m.add_function(wrap_pyfunction!(crosscheck_columns_py, m)?)?;
+    m.add_function(wrap_pyfunction!(calibrate_csv_py, m)?)?;
     m.add_function(wrap_pyfunction!(version, m)?)?;
     Ok(())
 }

@@ -4,6 +4,7 @@ fixture (accuracy) and the row contract (bad rows)."""
 from __future__ import annotations
 
 import csv
+import re
 import math
 import random
 import threading
@@ -279,3 +280,30 @@ def test_crosscheck_matches_the_cli(cli, tmp_path):
                 assert same_float(rec[c], out[c][i]), (i, c, rec[c], out[c][i])
     rev = saltus.crosscheck(frame.iloc[::-1].reset_index(drop=True), paths=20000, seed=7)
     np.testing.assert_array_equal(rev["price_mc"].to_numpy()[::-1], out["price_mc"].to_numpy())
+
+
+def test_calibrate_matches_the_cli(cli, tmp_path):
+    """saltus.calibrate gives the PARAMS and residuals files of
+    `saltus calibrate` on the invented demo quote sheet (source: the command
+    line), from the file and from a DataFrame of it."""
+    import subprocess
+
+    sheet = ROOT / "data" / "demo_quotes.csv"
+    params_csv = tmp_path / "params.csv"
+    res_csv = tmp_path / "res.csv"
+    proc = subprocess.run([str(cli), "calibrate", str(sheet), "-o", str(params_csv),
+                           "--residuals", str(res_csv), "-q"], capture_output=True, text=True)
+    assert proc.returncode in (0, 1), proc.stderr
+    read = lambda p: pd.read_csv(p, float_precision="round_trip",  # noqa: E731
+                                 keep_default_na=False, na_values=[""])
+    want_p, want_r = read(params_csv), read(res_csv)
+    got_p, got_r = saltus.calibrate(str(sheet))
+    pd.testing.assert_frame_equal(got_p, want_p)
+    pd.testing.assert_frame_equal(got_r, want_r)
+    frame = pd.read_csv(sheet, dtype=str, keep_default_na=False)
+    fp, fr = saltus.calibrate(frame)
+    pd.testing.assert_frame_equal(fp, want_p)
+    assert fr["status"].tolist() == [
+        re.sub(r"line (\d+):", lambda m: f"row {int(m.group(1)) - 2}:", s)
+        for s in want_r["status"]
+    ]
