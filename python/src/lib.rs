@@ -82,23 +82,8 @@ fn price_columns_py<'py>(
     pide_tol: Option<f64>,
     implied_vol: bool,
 ) -> PyResult<Bound<'py, PyDict>> {
-    let mut pide = saltus::engines::pide::PideConfig::default();
-    if let Some(t) = pide_tol {
-        // The command line's accepted range (`--pide-tol`).
-        if !(t.is_finite() && (1e-9..=1e-2).contains(&t)) {
-            return Err(PyValueError::new_err(format!(
-                "pide_tol must be between 1e-9 and 1e-2 (a fraction of spot), got {t}"
-            )));
-        }
-        pide.tol_spot = t;
-    }
-    let default_valuation = match default_valuation {
-        None => None,
-        Some(t) => Some(
-            saltus::market::dates::parse_date(&t)
-                .map_err(|e| PyValueError::new_err(format!("valuation_date '{t}' {e}")))?,
-        ),
-    };
+    let pide = pide_config(pide_tol, saltus::engines::pide::PideConfig::default())?;
+    let default_valuation = parse_valuation(default_valuation)?;
     let book = ColumnBook {
         kind: kind.column()?,
         spot: spot.column()?,
@@ -186,14 +171,7 @@ fn crosscheck_columns_py<'py>(
         },
         ..CheckConfig::default()
     };
-    if let Some(t) = pide_tol {
-        if !(t.is_finite() && (1e-9..=1e-2).contains(&t)) {
-            return Err(PyValueError::new_err(format!(
-                "pide_tol must be between 1e-9 and 1e-2 (a fraction of spot), got {t}"
-            )));
-        }
-        cfg.pide.tol_spot = t;
-    }
+    cfg.pide = pide_config(pide_tol, cfg.pide)?;
     let default_valuation = parse_valuation(default_valuation)?;
     let book = ColumnBook {
         kind: kind.column()?,
@@ -266,6 +244,23 @@ fn calibrate_csv_py(
         ))
     })
     .map_err(PyValueError::new_err)
+}
+
+/// `pide_tol` checked against the command line's accepted range
+/// (`--pide-tol`), or `default` when not given.
+fn pide_config(
+    tol: Option<f64>,
+    default: saltus::engines::pide::PideConfig,
+) -> PyResult<saltus::engines::pide::PideConfig> {
+    match tol {
+        None => Ok(default),
+        Some(t) if t.is_finite() && (1e-9..=1e-2).contains(&t) => {
+            Ok(saltus::engines::pide::PideConfig { tol_spot: t })
+        }
+        Some(t) => Err(PyValueError::new_err(format!(
+            "pide_tol must be between 1e-9 and 1e-2 (a fraction of spot), got {t}"
+        ))),
+    }
 }
 
 fn parse_valuation(t: Option<String>) -> PyResult<Option<saltus::market::dates::Date>> {
